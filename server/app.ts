@@ -1,0 +1,109 @@
+import express, { type Express, type RequestHandler } from 'express';
+import session from 'express-session';
+import connectPgSimple from 'connect-pg-simple';
+import helmet from 'helmet';
+import { pinoHttp } from 'pino-http';
+import type { Logger } from 'pino';
+import type pg from 'pg';
+import fs from 'node:fs';
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import type { Config } from './config';
+import type { Db } from './db/client';
+import { AppError, errorHandler } from './errors';
+import { attachActor } from './middleware/auth';
+import { authRoutes } from './routes/auth';
+import { controllerRoutes } from './routes/controllers';
+import { healthRoutes } from './routes/health';
+import { siteRoutes } from './routes/sites';
+import { zoneRoutes } from './routes/zones';
+
+export type AppDeps = {
+  config: Config;
+  db: Db;
+  pool: pg.Pool;
+  log: Logger;
+  sessionCookieName: string;
+  /** Extra API routers mounted by later layers (live control, programs …), each under /api. */
+  extraRoutes?: { path: string; router: express.Router }[];
+  /** Folder with the built client; served with a history fallback when present. */
+  clientDir?: string;
+};
+
+export type BuiltApp = { app: Express; sessionMiddleware: RequestHandler };
+
+export const defaultClientDir = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../dist');
+
+/** Build the Express app. Tests and benchmarks call this with their own database and config. */
+export function createApp(deps: AppDeps): BuiltApp {
+  const { config, db, pool, log } = deps;
+  const app = express();
+  app.disable('x-powered-by');
+  app.set('trust proxy', config.TRUST_PROXY ? 1 : false);
+
+  app.use(
+    helmet({
+      contentSecurityPolicy: {
+        useDefaults: false,
+        directives: {
+          defaultSrc: ["'self'"],
+          scriptSrc: ["'self'"],
+          styleSrc: ["'self'", "'unsafe-inline'"],
+          imgSrc: ["'self'", 'data:', 'blob:'],
+          fontSrc: ["'self'", 'data:'],
+          connectSrc: ["'self'"],
+          objectSrc: ["'none'"],
+          frameAncestors: ["'none'"],
+          baseUri: ["'self'"],
+          formAction: ["'self'"],
+        },
+      },
+      hsts: config.TRUST_PROXY,
+    }),
+  );
+  app.use(
+    pinoHttp({
+      logger: log,
+      redact: ['req.headers.cookie', 'req.headers.authorization', 'res.headers["set-cookie"]'],
+      autoLogging: { ignore: (req) => !req.url?.startsWith('/api') },
+    }),
+  );
+
+  const PgStore = connectPgSimple(session);
+  const sessionMiddleware = session({
+    name: deps.sessionCookieName,
+    secret: config.SESSION_SECRET,
+    store: new PgStore({ pool, tableName: 'sessions', createTableIfMissing: false, pruneSessionInterval: 60 * 15 }),
+    resave: false,
+    saveUninitialized: false,
+    rolling: true,
+    proxy: config.TRUST_PROXY,
+    cookie: {
+      httpOnly: true,
+      sameSite: 'lax',
+      secure: config.TRUST_PROXY ? 'auto' : false,
+      maxAge: 1000 * 60 * 60 * 12,
+    },
+  });
+
+  const api = express.Router();
+  api.use(express.json({ limit: config.JSON_LIMIT }));
+  api.use(sessionMiddleware);
+  api.use(attachActor(db));
+  api.use('/health', healthRoutes(deps));
+  api.use('/auth', authRoutes(deps));
+  api.use('/sites', siteRoutes(deps));
+  api.use('/controllers', controllerRoutes(deps));
+  api.use('/zones', zoneRoutes(deps));
+  for (const extra of deps.extraRoutes ?? []) api.use(extra.path, extra.router);
+  api.use((req, _res, next) => next(new AppError(404, 'not_found', `No route ${req.method} /api${req.path}`)));
+  app.use('/api', api);
+
+  const clientDir = deps.clientDir ?? defaultClientDir;
+  if (fs.existsSync(path.join(clientDir, 'index.html'))) {
+    app.use(express.static(clientDir, { index: false, maxAge: '1h' }));
+    app.get('/*splat', (_req, res) => res.sendFile(path.join(clientDir, 'index.html')));
+  }
+  app.use(errorHandler(log));
+  return { app, sessionMiddleware };
+}

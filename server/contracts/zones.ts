@@ -1,0 +1,36 @@
+import { z } from 'zod';
+
+export const plantTypes = ['cool_season_turf', 'warm_season_turf', 'shrubs', 'trees', 'groundcover', 'vegetables'] as const;
+export const soilTextures = ['sand', 'loamy_sand', 'sandy_loam', 'loam', 'silt_loam', 'clay_loam', 'clay'] as const;
+export const headTypes = ['spray', 'rotor', 'drip', 'bubbler'] as const;
+
+export const zoneFields = {
+  controllerId: z.number().int().positive(),
+  relay: z.number().int().min(1, 'Relay numbers start at 1').max(8, 'A board has at most 8 relays'),
+  name: z.string().trim().min(1, 'Name is required').max(120),
+  plantType: z.enum(plantTypes),
+  soilTexture: z.enum(soilTextures),
+  headType: z.enum(headTypes),
+  headCount: z.number().int().min(1, 'At least one head').max(500),
+  flowPerHeadLpm: z.number().positive('Flow per head must be above 0').max(500),
+  areaM2: z.number().positive('Area must be above 0').max(1_000_000),
+  rootDepthM: z.number().min(0.05, 'Root depth at least 0.05 m').max(3),
+  efficiency: z.number().min(0.3, 'Efficiency between 0.3 and 1').max(1, 'Efficiency between 0.3 and 1'),
+  notes: z.string().max(4000),
+};
+
+export const createZoneSchema = z.strictObject({
+  ...zoneFields,
+  efficiency: zoneFields.efficiency.default(0.75),
+  notes: zoneFields.notes.default(''),
+});
+export type CreateZone = z.infer<typeof createZoneSchema>;
+
+export const updateZoneSchema = z
+  .strictObject(zoneFields)
+  .partial()
+  .refine((v) => Object.keys(v).length > 0, { message: 'Nothing to change' });
+export type UpdateZone = z.infer<typeof updateZoneSchema>;
+
+/** Fields a technician may change on a service visit (head counts, measured flow, notes). */
+export const technicianZoneFields = ['headCount', 'flowPerHeadLpm', 'notes', 'name'] as const;

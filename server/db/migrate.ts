@@ -1,0 +1,11 @@
+import { migrate } from 'drizzle-orm/node-postgres/migrator';
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+import type { Db } from './client';
+
+export const migrationsFolder = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../../drizzle');
+
+/** Apply drizzle-kit's migrations with the same driver the app uses. */
+export async function runMigrations(db: Db): Promise<void> {
+  await migrate(db, { migrationsFolder });
+}

@@ -1,0 +1,5 @@
+export * from './enums';
+export * from './sites';
+export * from './users';
+export * from './devices';
+export * from './audit';

@@ -1,0 +1,32 @@
+import { Router } from 'express';
+import { z } from 'zod';
+import { idParam } from '../contracts/common';
+import { actorOf, requireAuth } from '../middleware/auth';
+import { parse } from '../middleware/validate';
+import { createZone, deleteZone, getZone, listZones, updateZone } from '../services/zones';
+import type { AppDeps } from '../app';
+
+const listQuery = z.object({ siteId: z.coerce.number().int().positive().optional() });
+
+export function zoneRoutes({ db }: AppDeps): Router {
+  const r = Router();
+  r.use(requireAuth);
+  r.get('/', async (req, res) => {
+    const { siteId } = parse(listQuery, req.query);
+    res.json({ items: await listZones({ db, actor: actorOf(req) }, siteId) });
+  });
+  r.post('/', async (req, res) => {
+    res.status(201).json(await createZone({ db, actor: actorOf(req) }, req.body));
+  });
+  r.get('/:id', async (req, res) => {
+    res.json(await getZone({ db, actor: actorOf(req) }, parse(idParam, req.params).id));
+  });
+  r.patch('/:id', async (req, res) => {
+    res.json(await updateZone({ db, actor: actorOf(req) }, parse(idParam, req.params).id, req.body));
+  });
+  r.delete('/:id', async (req, res) => {
+    await deleteZone({ db, actor: actorOf(req) }, parse(idParam, req.params).id);
+    res.status(204).end();
+  });
+  return r;
+}

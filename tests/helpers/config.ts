@@ -1,0 +1,14 @@
+import { loadConfig, type Config } from '../../server/config';
+
+export function testConfig(databaseUrl: string, extra: Record<string, string> = {}): Config {
+  return loadConfig({
+    NODE_ENV: 'test',
+    DATABASE_URL: databaseUrl,
+    PORT: '0',
+    LOG_LEVEL: 'silent',
+    LOGIN_RATE_LIMIT: '1000',
+    MQTT_PORT: '0',
+    SIM_PORT: '0',
+    ...extra,
+  });
+}
