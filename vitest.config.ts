@@ -11,6 +11,7 @@ export default defineConfig({
           name: 'unit',
           include: ['tests/unit/**/*.test.ts'],
           environment: 'node',
+          sequence: { groupOrder: 0 },
         },
       },
       {
@@ -22,6 +23,7 @@ export default defineConfig({
           testTimeout: 30_000,
           hookTimeout: 60_000,
           maxWorkers: 2,
+          sequence: { groupOrder: 1 },
         },
       },
       {
@@ -33,6 +35,7 @@ export default defineConfig({
           testTimeout: 60_000,
           hookTimeout: 120_000,
           fileParallelism: false,
+          sequence: { groupOrder: 2 },
         },
       },
     ],
