@@ -12,11 +12,9 @@ import type { Config } from './config';
 import type { Db } from './db/client';
 import { AppError, errorHandler } from './errors';
 import { attachActor } from './middleware/auth';
-import { authRoutes } from './routes/auth';
-import { controllerRoutes } from './routes/controllers';
-import { healthRoutes } from './routes/health';
-import { siteRoutes } from './routes/sites';
-import { zoneRoutes } from './routes/zones';
+import { apiRouters } from './routes/index';
+import type { Clock } from './clock';
+import type { Services } from './services/registry';
 
 export type AppDeps = {
   config: Config;
@@ -24,8 +22,11 @@ export type AppDeps = {
   pool: pg.Pool;
   log: Logger;
   sessionCookieName: string;
-  /** Extra API routers mounted by later layers (live control, programs …), each under /api. */
+  /** Extra API routers mounted by tests or benchmarks, each under /api. */
   extraRoutes?: { path: string; router: express.Router }[];
+  clock?: Clock;
+  /** Live parts (dispatcher, gateway, fleet …); absent in plain API tests, which then get 503 on control routes. */
+  services?: Services;
   /** Folder with the built client; served with a history fallback when present. */
   clientDir?: string;
 };
@@ -90,11 +91,7 @@ export function createApp(deps: AppDeps): BuiltApp {
   api.use(express.json({ limit: config.JSON_LIMIT }));
   api.use(sessionMiddleware);
   api.use(attachActor(db));
-  api.use('/health', healthRoutes(deps));
-  api.use('/auth', authRoutes(deps));
-  api.use('/sites', siteRoutes(deps));
-  api.use('/controllers', controllerRoutes(deps));
-  api.use('/zones', zoneRoutes(deps));
+  for (const r of apiRouters) api.use(r.path, r.build(deps));
   for (const extra of deps.extraRoutes ?? []) api.use(extra.path, extra.router);
   api.use((req, _res, next) => next(new AppError(404, 'not_found', `No route ${req.method} /api${req.path}`)));
   app.use('/api', api);

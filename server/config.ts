@@ -23,6 +23,16 @@ const configSchema = z
     MQTT_HOST: z.string().default('127.0.0.1'),
     MQTT_URL: z.string().url().optional(),
     SIM_PORT: z.coerce.number().int().min(0).max(65535).default(3901),
+    /** Run the simulated demo fleet inside the server process (demo mode only). */
+    SIMULATOR: bool.default(true),
+    ACK_TIMEOUT_MS: z.coerce.number().int().min(100).max(60_000).default(3000),
+    COMMAND_RETRIES: z.coerce.number().int().min(0).max(10).default(2),
+    /** Added to a run's length to give the board's own failsafe timer. */
+    FAILSAFE_MARGIN_SECONDS: z.coerce.number().int().min(1).max(600).default(30),
+    OFFLINE_AFTER_SECONDS: z.coerce.number().int().min(5).max(3600).default(90),
+    READING_BATCH_ROWS: z.coerce.number().int().min(1).max(100_000).default(5000),
+    READING_FLUSH_MS: z.coerce.number().int().min(5).max(10_000).default(200),
+    READING_BUFFER_ROWS: z.coerce.number().int().min(100).max(10_000_000).default(500_000),
     SMTP_URL: z.string().optional(),
     PUBLIC_URL: z.string().url().optional(),
     FIRM_NAME: z.string().default('Runnel'),

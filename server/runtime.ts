@@ -1,9 +1,18 @@
 import http from 'node:http';
 import type { AddressInfo } from 'node:net';
 import { pino, type Logger } from 'pino';
+import { startGateway, type Gateway } from '../gateway/index';
 import { createApp } from './app';
+import { realClock, type Clock } from './clock';
 import type { Config } from './config';
 import { createDb, type DbHandle } from './db/client';
+import { Fleet } from './fleet/fleet';
+import { createDeviceSink } from './ingest/device-sink';
+import { ReadingWriter } from './ingest/reading-writer';
+import { LiveBus } from './live/bus';
+import { attachLiveHub, type LiveHub } from './live/hub';
+import { ValveDispatcher } from './services/dispatcher';
+import type { Services } from './services/registry';
 
 export type Runtime = {
   config: Config;
@@ -11,41 +20,87 @@ export type Runtime = {
   dbh: DbHandle;
   server: http.Server;
   url: string;
+  gateway: Gateway;
+  mqttUrl: string | null;
+  services: Services;
+  writer: ReadingWriter;
+  hub: LiveHub;
+  /** Extra parts started alongside (simulator, fake services); closed before the rest. */
+  extras: { name: string; close: () => Promise<void> }[];
   close: () => Promise<void>;
 };
 
 export type RuntimeOptions = {
   log?: Logger;
   clientDir?: string;
+  clock?: Clock;
 };
 
 /** Wire every part of Runnel together and listen. index.ts, the e2e tests and the benchmarks use this. */
 export async function startRuntime(config: Config, opts: RuntimeOptions = {}): Promise<Runtime> {
   const log = opts.log ?? pino({ level: config.LOG_LEVEL ?? (config.NODE_ENV === 'test' ? 'silent' : 'info') });
+  const clock = opts.clock ?? realClock;
   const dbh = createDb(config.DATABASE_URL, { max: 20 });
-  const { app } = createApp({
-    config,
-    db: dbh.db,
-    pool: dbh.pool,
+  const { db, pool } = dbh;
+
+  const bus = new LiveBus();
+  const fleet = new Fleet(db);
+  await fleet.load();
+  const writer = new ReadingWriter(pool, log.child({ part: 'ingest' }), clock, {
+    batchRows: config.READING_BATCH_ROWS,
+    flushMs: config.READING_FLUSH_MS,
+    maxBufferedRows: config.READING_BUFFER_ROWS,
+  });
+  const sink = createDeviceSink({ db, fleet, writer, bus, clock, log: log.child({ part: 'ingest' }) });
+  const gateway = await startGateway({
+    embedded: config.MQTT_URL ? undefined : { host: config.MQTT_HOST, port: config.MQTT_PORT },
+    external: config.MQTT_URL ? { url: config.MQTT_URL, clientId: `runnel-server-${process.pid}` } : undefined,
+    sink,
     log,
+  });
+  const dispatcher = new ValveDispatcher({
+    db, fleet, bus, clock, log: log.child({ part: 'dispatcher' }),
+    send: (serial, cmd) => gateway.send(serial, cmd),
+    ackTimeoutMs: config.ACK_TIMEOUT_MS,
+    retries: config.COMMAND_RETRIES,
+    failsafeMarginS: config.FAILSAFE_MARGIN_SECONDS,
+  });
+  sink.setListener(dispatcher);
+  const services: Services = { fleet, bus, gateway, dispatcher };
+
+  const { app, sessionMiddleware } = createApp({
+    config, db, pool, log, clock, services,
     sessionCookieName: 'runnel.sid',
     clientDir: opts.clientDir,
   });
   const server = http.createServer(app);
+  const hub = attachLiveHub({ server, sessionMiddleware, db, fleet, bus, dispatcher, log: log.child({ part: 'live' }) });
   await new Promise<void>((ok, fail) => {
     server.once('error', fail);
     server.listen(config.PORT, config.HOST, () => ok());
   });
   const { port } = server.address() as AddressInfo;
   const url = `http://${config.HOST}:${port}`;
+  const mqttUrl = gateway.port !== null ? `mqtt://${config.MQTT_HOST}:${gateway.port}` : (config.MQTT_URL ?? null);
+
+  const sweep = setInterval(() => void sink.sweepSilent(config.OFFLINE_AFTER_SECONDS * 1000).catch(() => {}), 5000);
+  sweep.unref();
+
+  const extras: Runtime['extras'] = [];
   let closing: Promise<void> | null = null;
   const close = () =>
     (closing ??= (async () => {
+      clearInterval(sweep);
+      for (const e of extras.reverse()) await e.close().catch((err) => log.warn({ err, part: e.name }, 'close failed'));
+      dispatcher.stop();
+      await hub.close();
       await new Promise<void>((ok) => {
         server.close(() => ok());
         server.closeAllConnections();
       });
+      await gateway.close().catch(() => {});
+      await writer.close().catch(() => {});
       await dbh.close();
     })());
-  return { config, log, dbh, server, url, close };
+  return { config, log, dbh, server, url, gateway, mqttUrl, services, writer, hub, extras, close };
 }

@@ -1,4 +1,4 @@
-import { boolean, doublePrecision, index, integer, pgTable, text, timestamp, unique, varchar } from 'drizzle-orm/pg-core';
+import { bigint, boolean, doublePrecision, index, integer, pgTable, text, timestamp, unique, varchar } from 'drizzle-orm/pg-core';
 import { headTypeEnum, plantTypeEnum, soilTextureEnum } from './enums';
 import { sites } from './sites';
 
@@ -20,6 +20,12 @@ export const controllers = pgTable(
     /** argon2id hash of the board's MQTT secret; the secret itself is never stored. */
     secretHash: text('secret_hash'),
     online: boolean('online').notNull().default(false),
+    /** Highest board sequence number stored; anything at or below it is a duplicate. */
+    lastSeq: bigint('last_seq', { mode: 'number' }).notNull().default(0),
+    seqGaps: integer('seq_gaps').notNull().default(0),
+    /** Server time minus board time, measured when the board comes online (0 when within 2 min). */
+    clockOffsetMs: integer('clock_offset_ms').notNull().default(0),
+    rainTripped: boolean('rain_tripped').notNull().default(false),
     lastSeenAt: timestamp('last_seen_at', { withTimezone: true }),
     retiredAt: timestamp('retired_at', { withTimezone: true }),
     createdAt: timestamp('created_at', { withTimezone: true }).notNull().defaultNow(),

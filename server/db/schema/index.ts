@@ -3,3 +3,5 @@ export * from './sites';
 export * from './users';
 export * from './devices';
 export * from './audit';
+export * from './telemetry';
+export * from './weather';

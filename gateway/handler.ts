@@ -1,0 +1,109 @@
+import type { Logger } from 'pino';
+import { MAX_PAYLOAD_BYTES, parseTopic, schemaFor, boardPublishes, type MessageKind } from '../server/contracts/protocol';
+import type { DeviceSink, DropReason, GatewayStats } from './types';
+
+export const emptyStats = (): GatewayStats => ({
+  received: 0,
+  accepted: 0,
+  dropped: { malformed: 0, oversized: 0, duplicate: 0, unknown_topic: 0, acl_publish: 0, acl_subscribe: 0, bad_credentials: 0 },
+  gaps: 0,
+  commandsSent: 0,
+});
+
+type Outcome = { ok: true } | { ok: false; reason: DropReason };
+
+/**
+ * Turns raw board messages into domain facts: validates, drops duplicates, counts gaps,
+ * and resolves only when the sink has stored the fact. Never throws on bad input.
+ */
+export class ProtocolHandler {
+  readonly stats = emptyStats();
+  /** Highest sequence number accepted per board (seeded from the database at connect). */
+  private lastSeq = new Map<string, number>();
+  /** Each board's messages are stored strictly in order, so a stored sequence number never runs ahead of an unstored one. */
+  private chains = new Map<string, Promise<unknown>>();
+
+  constructor(
+    private sink: DeviceSink,
+    private log: Logger,
+  ) {}
+
+  setLastSeq(serial: string, seq: number) {
+    const cur = this.lastSeq.get(serial);
+    if (cur === undefined || seq > cur) this.lastSeq.set(serial, seq);
+  }
+
+  drop(serial: string, reason: DropReason, detail?: string): Outcome {
+    this.stats.dropped[reason]++;
+    this.log.warn({ serial, reason, detail }, 'board message dropped');
+    return { ok: false, reason };
+  }
+
+  /** Handle one message a board published. `fromSerial` is the authenticated sender, when known. */
+  async handle(fromSerial: string | null, topic: string, payload: Buffer, receivedAt = new Date()): Promise<Outcome> {
+    this.stats.received++;
+    const t = parseTopic(topic);
+    const who = fromSerial ?? t?.serial ?? 'unknown';
+    if (!t || !boardPublishes.includes(t.kind)) return this.drop(who, 'unknown_topic', topic);
+    if (fromSerial !== null && t.serial !== fromSerial) return this.drop(who, 'acl_publish', topic);
+    if (payload.length > MAX_PAYLOAD_BYTES) return this.drop(who, 'oversized', `${payload.length} bytes`);
+    let json: unknown;
+    try {
+      json = JSON.parse(payload.toString('utf8'));
+    } catch {
+      return this.drop(who, 'malformed', 'not JSON');
+    }
+    const parsed = schemaFor[t.kind].safeParse(json);
+    if (!parsed.success) {
+      return this.drop(who, 'malformed', parsed.error.issues.slice(0, 3).map((i) => `${i.path.join('.')}: ${i.message}`).join('; '));
+    }
+    const msg = parsed.data as { seq?: number };
+    const serial = t.serial;
+    // Retained state and status are snapshots: always applied, never counted as duplicates.
+    if (typeof msg.seq === 'number' && t.kind !== 'state') {
+      const last = this.lastSeq.get(serial) ?? 0;
+      if (msg.seq <= last) return this.drop(serial, 'duplicate', `seq ${msg.seq} ≤ ${last}`);
+      if (msg.seq > last + 1 && last > 0) {
+        const missing = msg.seq - last - 1;
+        this.stats.gaps += missing;
+        this.sink.gap(serial, missing);
+      }
+      this.lastSeq.set(serial, msg.seq);
+    }
+    const prev = this.chains.get(serial) ?? Promise.resolve();
+    const mine = prev.catch(() => {}).then(() => this.deliver(serial, t.kind, parsed.data, receivedAt));
+    this.chains.set(serial, mine);
+    try {
+      await mine;
+    } catch (e) {
+      // Not stored: forget the sequence number so the board's resend is accepted.
+      if (typeof msg.seq === 'number' && this.lastSeq.get(serial) === msg.seq) this.lastSeq.set(serial, msg.seq - 1);
+      throw e;
+    } finally {
+      if (this.chains.get(serial) === mine) this.chains.delete(serial);
+    }
+    this.stats.accepted++;
+    return { ok: true };
+  }
+
+  private deliver(serial: string, kind: MessageKind, data: unknown, at: Date): Promise<void> {
+    switch (kind) {
+      case 'telemetry': {
+        const m = data as import('../server/contracts/protocol').Telemetry;
+        return this.sink.samples(serial, m.seq, m.samples, at);
+      }
+      case 'event':
+        return this.sink.relayChanged(serial, data as import('../server/contracts/protocol').BoardEvent, at);
+      case 'state':
+        return this.sink.relayState(serial, data as import('../server/contracts/protocol').RelayState, at);
+      case 'ack':
+        return this.sink.acknowledged(serial, data as import('../server/contracts/protocol').Ack, at);
+      case 'status': {
+        const s = data as import('../server/contracts/protocol').BoardStatus;
+        return s.online ? this.sink.online(serial, s, at) : this.sink.offline(serial, 'last-will', at);
+      }
+      default:
+        return Promise.resolve();
+    }
+  }
+}

@@ -1,0 +1,135 @@
+import { z } from 'zod';
+
+/**
+ * Runnel device protocol, version 1 — the one place its messages are defined.
+ * The gateway and the simulator both import these schemas; docs/protocol.md explains them.
+ *
+ * Topics (all under `runnel/v1/<serial>/`):
+ *   cmd        server → board   QoS 1           a command to a relay
+ *   ack        board  → server  QoS 1           the board's answer to a command
+ *   state      board  → server  QoS 1, retained the board's relays, as they are now
+ *   status     board  → server  QoS 1, retained online/offline; the last-will says offline
+ *   telemetry  board  → server  QoS 1           a batch of sensor samples
+ *   event      board  → server  QoS 1           a relay opened or closed, and why
+ */
+export const PROTOCOL_VERSION = 1;
+export const TOPIC_ROOT = 'runnel/v1';
+export const MAX_PAYLOAD_BYTES = 16_384;
+export const MAX_SAMPLES_PER_TELEMETRY = 120;
+
+export const messageKinds = ['cmd', 'ack', 'state', 'status', 'telemetry', 'event'] as const;
+export type MessageKind = (typeof messageKinds)[number];
+export const boardPublishes: readonly MessageKind[] = ['ack', 'state', 'status', 'telemetry', 'event'];
+
+export const serialSchema = z.string().regex(/^[A-Z0-9][A-Z0-9-]{3,31}$/);
+
+export function topicFor(serial: string, kind: MessageKind): string {
+  return `${TOPIC_ROOT}/${serial}/${kind}`;
+}
+
+/** Split a topic into serial and kind; null for anything that is not a protocol topic. */
+export function parseTopic(topic: string): { serial: string; kind: MessageKind } | null {
+  const parts = topic.split('/');
+  if (parts.length !== 4 || `${parts[0]}/${parts[1]}` !== TOPIC_ROOT) return null;
+  const kind = parts[3] as MessageKind;
+  if (!messageKinds.includes(kind) || !serialSchema.safeParse(parts[2]).success) return null;
+  return { serial: parts[2], kind };
+}
+
+const isoTime = z.iso.datetime({ offset: true });
+const relayNo = z.number().int().min(1).max(8);
+const seq = z.number().int().min(0).max(2 ** 53 - 1);
+const v = z.literal(PROTOCOL_VERSION);
+
+/** Longest a command may hold a relay open; the board refuses more. */
+export const MAX_ON_SECONDS = 4 * 3600;
+
+export const commandSchema = z.discriminatedUnion('op', [
+  z.strictObject({ v, id: z.string().min(8).max(64), op: z.literal('open'), relay: relayNo, maxOnSeconds: z.number().int().min(1).max(MAX_ON_SECONDS), at: isoTime }),
+  z.strictObject({ v, id: z.string().min(8).max(64), op: z.literal('close'), relay: relayNo, at: isoTime }),
+  z.strictObject({ v, id: z.string().min(8).max(64), op: z.literal('close_all'), at: isoTime }),
+]);
+export type Command = z.infer<typeof commandSchema>;
+
+export const ackSchema = z.strictObject({
+  v,
+  id: z.string().min(8).max(64),
+  ok: z.boolean(),
+  error: z.string().max(200).optional(),
+  seq,
+  at: isoTime,
+});
+export type Ack = z.infer<typeof ackSchema>;
+
+export const stateSchema = z.strictObject({
+  v,
+  seq,
+  at: isoTime,
+  /** relays[i] is relay i + 1. */
+  relays: z
+    .array(
+      z.strictObject({
+        open: z.boolean(),
+        /** When it opened (board time) and when the board will close it by itself. */
+        since: isoTime.nullable(),
+        closesAt: isoTime.nullable(),
+        cmdId: z.string().max(64).nullable(),
+      }),
+    )
+    .min(1)
+    .max(8),
+});
+export type RelayState = z.infer<typeof stateSchema>;
+
+export const statusSchema = z.strictObject({
+  v,
+  online: z.boolean(),
+  firmware: z.string().max(32).optional(),
+  relayCount: z.number().int().min(1).max(8).optional(),
+  at: isoTime.optional(),
+});
+export type BoardStatus = z.infer<typeof statusSchema>;
+
+export const sampleSchema = z.strictObject({
+  at: isoTime,
+  rain: z.boolean(),
+  moistureRaw: z.number().int().min(0).max(4095),
+  moisturePct: z.number().min(0).max(100),
+  supplyV: z.number().min(0).max(60),
+  flowLpm: z.number().min(0).max(5000).nullable(),
+  rssi: z.number().int().min(-127).max(0),
+});
+export type Sample = z.infer<typeof sampleSchema>;
+
+export const telemetrySchema = z.strictObject({
+  v,
+  seq,
+  at: isoTime,
+  samples: z.array(sampleSchema).min(1).max(MAX_SAMPLES_PER_TELEMETRY),
+});
+export type Telemetry = z.infer<typeof telemetrySchema>;
+
+export const valveSources = ['command', 'button', 'failsafe', 'server'] as const;
+export type ValveSource = (typeof valveSources)[number];
+
+export const eventSchema = z.strictObject({
+  v,
+  seq,
+  at: isoTime,
+  kind: z.literal('relay'),
+  relay: relayNo,
+  open: z.boolean(),
+  /** command: the server asked; button: someone pressed the board's button; failsafe: the board's own timer closed it. */
+  source: z.enum(['command', 'button', 'failsafe']),
+  cmdId: z.string().max(64).nullable(),
+});
+export type BoardEvent = z.infer<typeof eventSchema>;
+
+export const schemaFor = {
+  cmd: commandSchema,
+  ack: ackSchema,
+  state: stateSchema,
+  status: statusSchema,
+  telemetry: telemetrySchema,
+  event: eventSchema,
+} as const;

@@ -1,0 +1,225 @@
+import argon2 from 'argon2';
+import { createHash } from 'node:crypto';
+import { eq, sql } from 'drizzle-orm';
+import type { Logger } from 'pino';
+import type { DeviceSink } from '../../gateway/types';
+import type { Ack, BoardEvent, BoardStatus, RelayState, Sample } from '../contracts/protocol';
+import type { Clock } from '../clock';
+import type { Db } from '../db/client';
+import { controllers, valveEvents } from '../db/schema/index';
+import type { BoardLive, Fleet } from '../fleet/fleet';
+import type { LiveBus } from '../live/bus';
+import type { ReadingRow, ReadingWriter } from './reading-writer';
+
+/** A board's clock within this of the server's is trusted as it is. */
+const CLOCK_TOLERANCE_MS = 120_000;
+
+export interface ValveListener {
+  relayChanged(board: BoardLive, e: BoardEvent, atMs: number): void;
+  relayState(board: BoardLive, s: RelayState): void;
+  acknowledged(board: BoardLive, a: Ack): void;
+  rainChanged(board: BoardLive, tripped: boolean, atMs: number): void;
+  onlineChanged(board: BoardLive, online: boolean): void;
+}
+
+export type SinkDeps = {
+  db: Db;
+  fleet: Fleet;
+  writer: ReadingWriter;
+  bus: LiveBus;
+  clock: Clock;
+  log: Logger;
+  listener?: ValveListener;
+};
+
+const digest = (s: string) => createHash('sha256').update(s).digest('hex');
+
+/** The server's side of the gateway: stores what boards report and tells everyone who may see it. */
+export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: ValveListener): void; sweepSilent(offlineAfterMs: number): Promise<void> } {
+  const { db, fleet, writer, bus, log } = deps;
+  let listener = deps.listener;
+  const verified = new Map<string, { hash: string; secretDigest: string }>();
+
+  async function board(serial: string): Promise<BoardLive | null> {
+    return fleet.get(serial) ?? (await fleet.refreshSerial(serial));
+  }
+
+  /** Server time of a board timestamp: corrected by the offset measured at connect, never in the future. */
+  function serverTime(b: BoardLive, boardAt: string, receivedAt: Date): Date {
+    const t = Date.parse(boardAt) + b.clockOffsetMs;
+    return new Date(Math.min(t, receivedAt.getTime()));
+  }
+
+  async function setOnline(b: BoardLive, online: boolean, at: Date) {
+    const changed = b.online !== online;
+    b.online = online;
+    b.lastSeenAt = at.getTime();
+    if (changed) {
+      bus.publish({ type: 'controller', siteId: b.siteId, controllerId: b.controllerId, online, lastSeenAt: at.toISOString() });
+      listener?.onlineChanged(b, online);
+    }
+  }
+
+  return {
+    setListener(l) {
+      listener = l;
+    },
+
+    async authenticate(serial, secret) {
+      const [c] = await db
+        .select({ id: controllers.id, hash: controllers.secretHash, retiredAt: controllers.retiredAt, lastSeq: controllers.lastSeq })
+        .from(controllers)
+        .where(eq(controllers.serial, serial));
+      if (!c || !c.hash || c.retiredAt) return null;
+      const cached = verified.get(serial);
+      const d = digest(secret);
+      let ok = cached?.hash === c.hash && cached.secretDigest === d;
+      if (!ok) {
+        ok = await argon2.verify(c.hash, secret).catch(() => false);
+        if (ok) verified.set(serial, { hash: c.hash, secretDigest: d });
+      }
+      return ok ? { lastSeq: c.lastSeq } : null;
+    },
+
+    async online(serial, status: BoardStatus, receivedAt) {
+      const b = await board(serial);
+      if (!b) return;
+      let offset = 0;
+      if (status.at) {
+        const diff = receivedAt.getTime() - Date.parse(status.at);
+        if (Math.abs(diff) > CLOCK_TOLERANCE_MS) offset = diff;
+      }
+      b.clockOffsetMs = offset;
+      if (offset) log.warn({ serial, offsetMs: offset }, 'board clock is off; correcting its times');
+      await db
+        .update(controllers)
+        .set({
+          online: true,
+          lastSeenAt: receivedAt,
+          clockOffsetMs: offset,
+          ...(status.firmware ? { firmwareVersion: status.firmware } : {}),
+        })
+        .where(eq(controllers.id, b.controllerId));
+      await setOnline(b, true, receivedAt);
+    },
+
+    async offline(serial, reason, at) {
+      const b = fleet.get(serial);
+      if (!b || !b.online) return;
+      log.info({ serial, reason }, 'board offline');
+      await db.update(controllers).set({ online: false }).where(eq(controllers.id, b.controllerId));
+      b.online = false;
+      bus.publish({ type: 'controller', siteId: b.siteId, controllerId: b.controllerId, online: false, lastSeenAt: b.lastSeenAt ? new Date(b.lastSeenAt).toISOString() : null });
+      listener?.onlineChanged(b, false);
+      void at;
+    },
+
+    async relayChanged(serial, e: BoardEvent, receivedAt) {
+      const b = await board(serial);
+      if (!b) return;
+      const at = serverTime(b, e.at, receivedAt);
+      const zoneId = b.zoneByRelay.get(e.relay) ?? null;
+      await db.transaction(async (tx) => {
+        await tx.insert(valveEvents).values({
+          controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open, source: e.source,
+          commandId: e.cmdId && /^[0-9a-f-]{36}$/.test(e.cmdId) ? e.cmdId : null,
+          seq: e.seq, boardAt: new Date(e.at), at, receivedAt,
+        });
+        await tx
+          .update(controllers)
+          .set({ lastSeq: sql`greatest(${controllers.lastSeq}, ${e.seq})`, lastSeenAt: receivedAt })
+          .where(eq(controllers.id, b.controllerId));
+      });
+      b.lastSeenAt = receivedAt.getTime();
+      const r = b.relays[e.relay - 1];
+      if (r) {
+        r.open = e.open;
+        r.since = e.open ? at.getTime() : null;
+        if (!e.open) r.plannedEnd = null;
+        r.cmdId = e.cmdId;
+      }
+      listener?.relayChanged(b, e, at.getTime());
+      bus.publish({
+        type: 'valve', siteId: b.siteId, controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open,
+        at: at.toISOString(), source: e.source,
+        since: r?.since ? new Date(r.since).toISOString() : null,
+        plannedEnd: r?.plannedEnd ? new Date(r.plannedEnd).toISOString() : null,
+      });
+    },
+
+    async relayState(serial, s: RelayState, receivedAt) {
+      const b = await board(serial);
+      if (!b) return;
+      s.relays.forEach((x, i) => {
+        const r = b.relays[i];
+        if (!r) return;
+        r.open = x.open;
+        r.since = x.open && x.since ? serverTime(b, x.since, receivedAt).getTime() : null;
+        r.cmdId = x.cmdId;
+        if (!x.open) r.plannedEnd = null;
+        else if (x.closesAt && !r.plannedEnd) r.plannedEnd = Date.parse(x.closesAt) + b.clockOffsetMs;
+      });
+      b.lastSeenAt = receivedAt.getTime();
+      listener?.relayState(b, s);
+    },
+
+    async acknowledged(serial, a: Ack, receivedAt) {
+      const b = await board(serial);
+      if (!b) return;
+      b.lastSeenAt = receivedAt.getTime();
+      listener?.acknowledged(b, a);
+    },
+
+    async samples(serial, seq, samples: Sample[], receivedAt) {
+      const b = await board(serial);
+      if (!b) return;
+      const rows: ReadingRow[] = samples.map((x) => ({
+        controllerId: b.controllerId,
+        at: serverTime(b, x.at, receivedAt),
+        boardAt: new Date(x.at),
+        receivedAt,
+        seq,
+        rain: x.rain,
+        moistureRaw: x.moistureRaw,
+        moisturePct: x.moisturePct,
+        supplyV: x.supplyV,
+        flowLpm: x.flowLpm,
+        rssi: x.rssi,
+      }));
+      await writer.write(b.controllerId, seq, rows);
+      b.lastSeenAt = receivedAt.getTime();
+      if (!b.online) await setOnline(b, true, receivedAt);
+      const last = samples[samples.length - 1];
+      const lastAt = rows[rows.length - 1].at;
+      for (let i = 0; i < samples.length; i++) {
+        fleet.pushRecent(b, { at: rows[i].at.getTime(), moisturePct: samples[i].moisturePct, flowLpm: samples[i].flowLpm, supplyV: samples[i].supplyV });
+      }
+      b.latest = { ...last, atMs: lastAt.getTime() };
+      if (last.rain !== b.rain) {
+        b.rain = last.rain;
+        await db.update(controllers).set({ rainTripped: last.rain }).where(eq(controllers.id, b.controllerId));
+        bus.publish({ type: 'rain', siteId: b.siteId, controllerId: b.controllerId, tripped: last.rain, at: lastAt.toISOString() });
+        listener?.rainChanged(b, last.rain, lastAt.getTime());
+      }
+      bus.publish({
+        type: 'reading', siteId: b.siteId, controllerId: b.controllerId, at: lastAt.toISOString(),
+        rain: last.rain, moisturePct: last.moisturePct, supplyV: last.supplyV, flowLpm: last.flowLpm, rssi: last.rssi,
+      });
+    },
+
+    gap(serial, missing) {
+      const b = fleet.get(serial);
+      log.warn({ serial, missing }, 'board sequence gap');
+      if (b) void db.update(controllers).set({ seqGaps: sql`${controllers.seqGaps} + ${missing}` }).where(eq(controllers.id, b.controllerId)).catch(() => {});
+    },
+
+    async sweepSilent(offlineAfterMs) {
+      const now = deps.clock.now();
+      for (const b of fleet.all()) {
+        if (b.online && b.lastSeenAt !== null && now - b.lastSeenAt > offlineAfterMs) {
+          await this.offline(b.serial, 'silence', new Date(now));
+        }
+      }
+    },
+  };
+}

@@ -1,0 +1,165 @@
+import type pg from 'pg';
+import { from as copyFrom } from 'pg-copy-streams';
+import { pipeline } from 'node:stream/promises';
+import { Readable } from 'node:stream';
+import type { Logger } from 'pino';
+import type { Clock } from '../clock';
+
+export type ReadingRow = {
+  controllerId: number;
+  at: Date;
+  boardAt: Date;
+  receivedAt: Date;
+  seq: number;
+  rain: boolean;
+  moistureRaw: number;
+  moisturePct: number;
+  supplyV: number;
+  flowLpm: number | null;
+  rssi: number;
+};
+
+type Pending = { rows: ReadingRow[]; controllerId: number; seq: number; resolve: () => void; reject: (e: Error) => void };
+
+export type WriterStats = {
+  rowsWritten: number;
+  batches: number;
+  failures: number;
+  buffered: number;
+  refused: number;
+  maxBuffered: number;
+};
+
+const ts = (d: Date) => d.toISOString();
+const num = (v: number | null) => (v === null ? '\\N' : String(v));
+
+function toCopyLine(r: ReadingRow): string {
+  return `${r.controllerId}\t${ts(r.at)}\t${ts(r.boardAt)}\t${ts(r.receivedAt)}\t${r.seq}\t${r.rain ? 't' : 'f'}\t${r.moistureRaw}\t${r.moisturePct}\t${r.supplyV}\t${num(r.flowLpm)}\t${r.rssi}\n`;
+}
+
+/**
+ * Writes readings with COPY in batches, flushed by size and by time. Each batch commits
+ * together with the boards' highest stored sequence numbers, so a restart resumes
+ * de-duplication exactly where the database is. A failed batch is kept and retried; when the
+ * buffer is full, new work is refused (the board keeps it and resends later).
+ */
+export class ReadingWriter {
+  readonly stats: WriterStats = { rowsWritten: 0, batches: 0, failures: 0, buffered: 0, refused: 0, maxBuffered: 0 };
+  private queue: Pending[] = [];
+  private timer: unknown = null;
+  private flushing: Promise<void> | null = null;
+  private closed = false;
+
+  constructor(
+    private pool: pg.Pool,
+    private log: Logger,
+    private clock: Clock,
+    private opts: { batchRows: number; flushMs: number; maxBufferedRows: number; onBufferFull?: () => void } = {
+      batchRows: 5000,
+      flushMs: 200,
+      maxBufferedRows: 500_000,
+    },
+  ) {}
+
+  /** Resolves once the rows are committed. */
+  write(controllerId: number, seq: number, rows: ReadingRow[]): Promise<void> {
+    if (this.closed) return Promise.reject(new Error('writer closed'));
+    if (this.stats.buffered + rows.length > this.opts.maxBufferedRows) {
+      this.stats.refused += rows.length;
+      this.opts.onBufferFull?.();
+      return Promise.reject(new Error('reading buffer full'));
+    }
+    return new Promise((resolve, reject) => {
+      this.queue.push({ rows, controllerId, seq, resolve, reject });
+      this.stats.buffered += rows.length;
+      this.stats.maxBuffered = Math.max(this.stats.maxBuffered, this.stats.buffered);
+      if (this.stats.buffered >= this.opts.batchRows) void this.flush();
+      else if (!this.timer) this.timer = this.clock.setTimeout(() => void this.flush(), this.opts.flushMs);
+    });
+  }
+
+  flush(): Promise<void> {
+    if (this.timer) {
+      this.clock.clearTimeout(this.timer);
+      this.timer = null;
+    }
+    if (this.flushing) return this.flushing.then(() => (this.queue.length ? this.flush() : undefined));
+    if (this.queue.length === 0) return Promise.resolve();
+    this.flushing = this.drain().finally(() => {
+      this.flushing = null;
+    });
+    return this.flushing;
+  }
+
+  private async drain(): Promise<void> {
+    let delay = 100;
+    while (this.queue.length) {
+      // Take up to batchRows worth of whole messages.
+      const batch: Pending[] = [];
+      let n = 0;
+      while (this.queue.length && (n === 0 || n + this.queue[0].rows.length <= this.opts.batchRows)) {
+        const p = this.queue.shift()!;
+        batch.push(p);
+        n += p.rows.length;
+      }
+      for (;;) {
+        try {
+          await this.commit(batch);
+          break;
+        } catch (err) {
+          this.stats.failures++;
+          this.log.warn({ err: (err as Error).message, rows: n }, 'reading batch failed; retrying');
+          if (this.closed) {
+            for (const p of batch) p.reject(err as Error);
+            this.stats.buffered -= n;
+            return;
+          }
+          await new Promise((r) => this.clock.setTimeout(() => r(null), delay));
+          delay = Math.min(delay * 2, 5000);
+        }
+      }
+      delay = 100;
+      this.stats.rowsWritten += n;
+      this.stats.batches++;
+      this.stats.buffered -= n;
+      for (const p of batch) p.resolve();
+    }
+  }
+
+  private async commit(batch: Pending[]): Promise<void> {
+    const client = await this.pool.connect();
+    try {
+      await client.query('begin');
+      const lines = batch.flatMap((p) => p.rows.map(toCopyLine));
+      const stream = client.query(
+        copyFrom(
+          'copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin',
+        ),
+      );
+      await pipeline(Readable.from(chunk(lines, 500)), stream);
+      const maxSeq = new Map<number, number>();
+      for (const p of batch) maxSeq.set(p.controllerId, Math.max(maxSeq.get(p.controllerId) ?? 0, p.seq));
+      const ids = [...maxSeq.keys()];
+      await client.query(
+        `update controllers c set last_seq = greatest(c.last_seq, v.seq), last_seen_at = now()
+           from unnest($1::int[], $2::bigint[]) as v(id, seq) where c.id = v.id`,
+        [ids, ids.map((i) => maxSeq.get(i))],
+      );
+      await client.query('commit');
+    } catch (e) {
+      await client.query('rollback').catch(() => {});
+      throw e;
+    } finally {
+      client.release();
+    }
+  }
+
+  async close(): Promise<void> {
+    await this.flush();
+    this.closed = true;
+  }
+}
+
+function* chunk(lines: string[], size: number) {
+  for (let i = 0; i < lines.length; i += size) yield lines.slice(i, i + size).join('');
+}

@@ -1,0 +1,82 @@
+import { Router, type Request } from 'express';
+import { z } from 'zod';
+import { idParam } from '../contracts/common';
+import { AppError, forbidden } from '../errors';
+import { actorOf, requireAuth } from '../middleware/auth';
+import { parse } from '../middleware/validate';
+import { recordAudit } from '../services/audit';
+import { loadVisibleSite } from '../services/sites';
+import { loadVisibleZone } from '../services/zones';
+import type { AppDeps } from '../app';
+
+function services(deps: AppDeps) {
+  if (!deps.services) throw new AppError(503, 'live_unavailable', 'Valve control is not running on this server');
+  return deps.services;
+}
+
+function mayControl(req: Request) {
+  const actor = actorOf(req);
+  if (actor.role === 'owner') throw forbidden('Owners may not open or close valves');
+  return actor;
+}
+
+/** Manual valve control: POST /api/zones/:id/start, /api/zones/:id/stop. */
+export function zoneControlRoutes(deps: AppDeps): Router {
+  const r = Router();
+  const { db } = deps;
+  const startBody = z.strictObject({
+    minutes: z
+      .number()
+      .int('Whole minutes')
+      .min(1, 'At least 1 minute')
+      .max(deps.config.MANUAL_MAX_MINUTES, `At most ${deps.config.MANUAL_MAX_MINUTES} minutes`),
+  });
+  r.use(requireAuth);
+  r.post('/:id/start', async (req, res) => {
+    const { id } = parse(idParam, req.params);
+    const { zone, site } = await loadVisibleZone({ db, actor: actorOf(req) }, id);
+    const actor = mayControl(req);
+    const { minutes } = parse(startBody, req.body);
+    const s = services(deps);
+    try {
+      const out = await s.dispatcher.start({ zoneId: zone.id, seconds: minutes * 60, origin: 'manual', actor });
+      await recordAudit(db, actor, { action: 'valve.start', entityType: 'zone', entityId: zone.id, siteId: site.id, outcome: out.state, after: { minutes, commandId: out.commandId } });
+      res.status(202).json({ ...out, minutes, message: out.state === 'queued' ? `Queued: ${out.reason}` : 'Sent to the board; waiting for its acknowledgement' });
+    } catch (e) {
+      await recordAudit(db, actor, { action: 'valve.start', entityType: 'zone', entityId: zone.id, siteId: site.id, outcome: 'refused', after: { minutes, error: (e as Error).message } });
+      throw e;
+    }
+  });
+  r.post('/:id/stop', async (req, res) => {
+    const { id } = parse(idParam, req.params);
+    const { zone, site } = await loadVisibleZone({ db, actor: actorOf(req) }, id);
+    const actor = mayControl(req);
+    const s = services(deps);
+    await recordAudit(db, actor, { action: 'valve.stop', entityType: 'zone', entityId: zone.id, siteId: site.id, outcome: 'requested' });
+    void s.dispatcher.close(zone.id, site.id, 'stopped', actor);
+    res.status(202).json({ zoneId: zone.id, message: 'Closing' });
+  });
+  return r;
+}
+
+/** POST /api/sites/:id/stop closes every valve of the site; GET /api/sites/:id/activity shows what runs and waits. */
+export function siteControlRoutes(deps: AppDeps): Router {
+  const r = Router();
+  const { db } = deps;
+  r.use(requireAuth);
+  r.post('/:id/stop', async (req, res) => {
+    const { id } = parse(idParam, req.params);
+    await loadVisibleSite({ db, actor: actorOf(req) }, id);
+    const actor = mayControl(req);
+    const s = services(deps);
+    await recordAudit(db, actor, { action: 'site.stop_all', entityType: 'site', entityId: id, siteId: id, outcome: 'requested' });
+    void s.dispatcher.stopSite(id, 'stopped', actor);
+    res.status(202).json({ siteId: id, message: 'Closing every valve of the site' });
+  });
+  r.get('/:id/activity', async (req, res) => {
+    const { id } = parse(idParam, req.params);
+    await loadVisibleSite({ db, actor: actorOf(req) }, id);
+    res.json(services(deps).dispatcher.siteActivity(id));
+  });
+  return r;
+}

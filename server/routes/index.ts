@@ -1,0 +1,22 @@
+import type { Router } from 'express';
+import type { AppDeps } from '../app';
+import { authRoutes } from './auth';
+import { controllerRoutes } from './controllers';
+import { healthRoutes } from './health';
+import { siteRoutes } from './sites';
+import { zoneRoutes } from './zones';
+import { siteControlRoutes, zoneControlRoutes } from './control';
+
+/**
+ * Every API router and where it is mounted under /api. A new resource is one line here.
+ * Routers that need live parts (gateway, dispatcher) get them from deps.
+ */
+export const apiRouters: { path: string; build: (deps: AppDeps) => Router }[] = [
+  { path: '/health', build: healthRoutes },
+  { path: '/auth', build: authRoutes },
+  { path: '/sites', build: siteRoutes },
+  { path: '/controllers', build: controllerRoutes },
+  { path: '/zones', build: zoneRoutes },
+  { path: '/zones', build: zoneControlRoutes },
+  { path: '/sites', build: siteControlRoutes },
+];

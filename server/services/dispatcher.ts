@@ -1,0 +1,419 @@
+import { randomUUID } from 'node:crypto';
+import { eq, sql } from 'drizzle-orm';
+import type { Logger } from 'pino';
+import type { Ack, BoardEvent, Command, RelayState } from '../contracts/protocol';
+import type { Clock } from '../clock';
+import type { Db } from '../db/client';
+import { commands, controllers, sites, zones } from '../db/schema/index';
+import { usableSupply } from '../domain/hydraulics';
+import { conflict, notFound } from '../errors';
+import type { BoardLive, Fleet } from '../fleet/fleet';
+import type { ValveListener } from '../ingest/device-sink';
+import type { LiveBus } from '../live/bus';
+import { recordAudit } from './audit';
+import type { Actor } from './actor';
+
+export type Origin = 'manual' | 'program' | 'walk' | 'button' | 'adopted';
+
+export type ZoneOutcome =
+  | { kind: 'opened'; at: number }
+  | { kind: 'closed'; at: number; why: 'completed' | 'stopped' | 'failsafe' | 'button' | 'rain' | 'board' }
+  | { kind: 'failed'; at: number; error: string };
+
+export type StartRequest = {
+  zoneId: number;
+  seconds: number;
+  origin: Origin;
+  actor?: Actor | null;
+  /** Called as the zone opens, closes or fails (the scheduler records zone runs from this). */
+  onOutcome?: (o: ZoneOutcome) => void;
+};
+
+export type StartResult = { commandId: string; state: 'sent' | 'queued'; reason?: string; zoneId: number };
+
+type Active = {
+  zoneId: number;
+  controllerId: number;
+  relay: number;
+  flowLpm: number;
+  commandId: string;
+  seconds: number;
+  state: 'opening' | 'open' | 'closing';
+  plannedEnd: number | null;
+  closeTimer: unknown;
+  origin: Origin;
+  actor: Actor | null;
+  onOutcome?: (o: ZoneOutcome) => void;
+  closeWhy?: 'completed' | 'stopped' | 'rain';
+  done?: boolean;
+};
+
+type Queued = Omit<Active, 'state' | 'plannedEnd' | 'closeTimer'> & { queuedAt: number };
+type SiteState = { active: Map<number, Active>; queue: Queued[] };
+type MasterState = { open: boolean; plannedEnd: number };
+
+export type DispatcherDeps = {
+  db: Db;
+  fleet: Fleet;
+  bus: LiveBus;
+  send: (serial: string, cmd: Command) => Promise<void>;
+  clock: Clock;
+  log: Logger;
+  ackTimeoutMs: number;
+  retries: number;
+  failsafeMarginS: number;
+};
+
+/** Extra time kept between two energisations beyond the controller's stagger, for delivery jitter. */
+const STAGGER_SAFETY_MS = 30;
+
+/**
+ * Decides when each valve opens. Relays on one controller are energised at least the
+ * controller's stagger apart; a controller never has more zones open than its cap, and a site
+ * never draws more than its usable supply (one zone alone may, when it is flagged over supply).
+ * What does not fit waits in the site's queue. Nothing counts as done until the board acknowledges.
+ */
+export class ValveDispatcher implements ValveListener {
+  private sites = new Map<number, SiteState>();
+  private nextSlot = new Map<number, number>();
+  private masters = new Map<number, MasterState>();
+  private acks = new Map<string, (a: Ack) => void>();
+  private stopped = false;
+
+  constructor(private d: DispatcherDeps) {}
+
+  private site(siteId: number): SiteState {
+    let s = this.sites.get(siteId);
+    if (!s) this.sites.set(siteId, (s = { active: new Map(), queue: [] }));
+    return s;
+  }
+
+  /** Open (or extend) a zone for `seconds`. Throws 404 / 409 for an unknown zone or an offline controller. */
+  async start(req: StartRequest): Promise<StartResult> {
+    const [row] = await this.d.db
+      .select({ zone: zones, controller: controllers, site: sites })
+      .from(zones)
+      .innerJoin(controllers, eq(zones.controllerId, controllers.id))
+      .innerJoin(sites, eq(controllers.siteId, sites.id))
+      .where(eq(zones.id, req.zoneId));
+    if (!row) throw notFound('Zone');
+    const board = this.d.fleet.getById(row.controller.id) ?? (await this.d.fleet.refresh(row.controller.id));
+    if (!board || !board.online) {
+      throw conflict('controller_offline', `${row.controller.name} is offline; the valve cannot be opened until it reconnects`);
+    }
+    const s = this.site(row.site.id);
+    const flowLpm = row.zone.headCount * row.zone.flowPerHeadLpm;
+    const existing = s.active.get(req.zoneId);
+    if (existing && existing.state !== 'closing') {
+      // Already running: extend from now.
+      existing.seconds = req.seconds;
+      await this.openRelay(board, existing, true);
+      return { commandId: existing.commandId, state: 'sent', zoneId: req.zoneId };
+    }
+    const commandId = randomUUID();
+    const item: Queued = {
+      zoneId: req.zoneId, controllerId: board.controllerId, relay: row.zone.relay, flowLpm, commandId,
+      seconds: req.seconds, origin: req.origin, actor: req.actor ?? null, onOutcome: req.onOutcome, queuedAt: this.d.clock.now(),
+    };
+    await this.d.db.insert(commands).values({
+      id: commandId, controllerId: board.controllerId, zoneId: req.zoneId, op: 'open', relay: row.zone.relay,
+      maxOnSeconds: req.seconds + this.d.failsafeMarginS, origin: req.origin, requestedBy: req.actor?.userId || null, state: 'queued',
+    });
+    const usable = usableSupply(row.site.supplyFlowLpm, row.site.supplyMarginPct);
+    const blocker = s.queue.length ? 'other zones are waiting ahead of it' : this.blocker(s, board, item, usable);
+    if (blocker) {
+      s.queue.push(item);
+      this.emitCommand(board, item, 'queued', `Waiting: ${blocker}`);
+      return { commandId, state: 'queued', reason: blocker, zoneId: req.zoneId };
+    }
+    this.launch(s, board, item);
+    return { commandId, state: 'sent', zoneId: req.zoneId };
+  }
+
+  /** Why a zone cannot open now, or null when it can. */
+  private blocker(s: SiteState, board: BoardLive, item: Queued, usable: number): string | null {
+    const onBoard = [...s.active.values()].filter((a) => a.controllerId === board.controllerId).length;
+    if (onBoard >= board.maxConcurrentValves) {
+      return `${board.name} already has ${onBoard} of ${board.maxConcurrentValves} valves open`;
+    }
+    const inUse = [...s.active.values()].reduce((t, a) => t + a.flowLpm, 0);
+    if (s.active.size > 0 && inUse + item.flowLpm > usable + 1e-9) {
+      return `the supply is in use (${round1(inUse)} of ${round1(usable)} L/min; this zone needs ${round1(item.flowLpm)})`;
+    }
+    return null;
+  }
+
+  private launch(s: SiteState, board: BoardLive, item: Queued) {
+    const a: Active = { ...item, state: 'opening', plannedEnd: null, closeTimer: null };
+    s.active.set(item.zoneId, a);
+    void this.openRelay(board, a, false).catch((err) => this.d.log.error({ err }, 'open failed'));
+  }
+
+  /** Reserve the next moment a relay on this controller may be energised. */
+  private reserveSlot(board: BoardLive): number {
+    const now = this.d.clock.now();
+    const t = Math.max(now, this.nextSlot.get(board.controllerId) ?? 0);
+    this.nextSlot.set(board.controllerId, t + board.staggerMs + STAGGER_SAFETY_MS);
+    return t;
+  }
+
+  private async waitUntil(t: number) {
+    const ms = t - this.d.clock.now();
+    if (ms > 0) await new Promise<void>((r) => this.d.clock.setTimeout(r, ms));
+  }
+
+  private async openRelay(board: BoardLive, a: Active, extend: boolean) {
+    const s = this.site(board.siteId);
+    try {
+      if (board.masterValveRelay && !extend) await this.ensureMaster(board, a.seconds);
+      else if (board.masterValveRelay) await this.ensureMaster(board, a.seconds);
+      const cmd = (): Command => ({
+        v: 1, id: a.commandId, op: 'open', relay: a.relay, maxOnSeconds: a.seconds + this.d.failsafeMarginS, at: new Date(this.d.clock.now()).toISOString(),
+      });
+      const relayOpen = board.relays[a.relay - 1]?.open;
+      await this.sendWithAck(board, cmd, !relayOpen && !extend);
+      if (this.stopped) return;
+      const now = this.d.clock.now();
+      a.state = 'open';
+      a.plannedEnd = now + a.seconds * 1000;
+      const r = board.relays[a.relay - 1];
+      if (r) r.plannedEnd = a.plannedEnd;
+      if (a.closeTimer) this.d.clock.clearTimeout(a.closeTimer);
+      a.closeTimer = this.d.clock.setTimeout(() => void this.close(a.zoneId, board.siteId, 'completed'), a.seconds * 1000);
+      await this.d.db.update(commands).set({ state: 'acked', ackedAt: new Date(now) }).where(eq(commands.id, a.commandId));
+      this.emitCommand(board, a, 'acked');
+      if (!extend) a.onOutcome?.({ kind: 'opened', at: now });
+      if (a.actor) await recordAudit(this.d.db, a.actor, { action: 'valve.open', entityType: 'zone', entityId: a.zoneId, siteId: board.siteId, outcome: 'acked', after: { seconds: a.seconds, commandId: a.commandId } });
+    } catch (err) {
+      const msg = (err as Error).message;
+      a.done = true;
+      if (s.active.get(a.zoneId) === a) s.active.delete(a.zoneId);
+      await this.d.db.update(commands).set({ state: 'failed', error: msg.slice(0, 300) }).where(eq(commands.id, a.commandId)).catch(() => {});
+      this.emitCommand(board, a, 'failed', msg);
+      a.onOutcome?.({ kind: 'failed', at: this.d.clock.now(), error: msg });
+      if (a.actor) await recordAudit(this.d.db, a.actor, { action: 'valve.open', entityType: 'zone', entityId: a.zoneId, siteId: board.siteId, outcome: 'failed', after: { error: msg } }).catch(() => {});
+      await this.afterRelease(board);
+    }
+  }
+
+  private async ensureMaster(board: BoardLive, seconds: number) {
+    const relay = board.masterValveRelay!;
+    const want = this.d.clock.now() + (seconds + this.d.failsafeMarginS) * 1000;
+    const m = this.masters.get(board.controllerId);
+    if (m?.open && m.plannedEnd >= want) return;
+    const fresh = !m?.open && !board.relays[relay - 1]?.open;
+    const id = randomUUID();
+    const maxOn = Math.ceil((want - this.d.clock.now()) / 1000) + this.d.failsafeMarginS;
+    await this.sendWithAck(board, () => ({ v: 1, id, op: 'open', relay, maxOnSeconds: maxOn, at: new Date(this.d.clock.now()).toISOString() }), fresh);
+    this.masters.set(board.controllerId, { open: true, plannedEnd: want });
+  }
+
+  /** Send a command and wait for its acknowledgement, retrying on silence. `energise` reserves a stagger slot first. */
+  private async sendWithAck(board: BoardLive, make: () => Command, energise: boolean): Promise<void> {
+    const attempts = 1 + this.d.retries;
+    let lastErr = 'no acknowledgement';
+    for (let i = 0; i < attempts; i++) {
+      if (this.stopped) throw new Error('server stopping');
+      if (energise) await this.waitUntil(this.reserveSlot(board));
+      const cmd = make();
+      const ack = new Promise<Ack | null>((resolve) => {
+        const timer = this.d.clock.setTimeout(() => {
+          this.acks.delete(cmd.id);
+          resolve(null);
+        }, this.d.ackTimeoutMs);
+        this.acks.set(cmd.id, (a) => {
+          this.d.clock.clearTimeout(timer);
+          this.acks.delete(cmd.id);
+          resolve(a);
+        });
+      });
+      await this.d.db
+        .update(commands)
+        .set({ state: 'sent', attempts: sql`${commands.attempts} + 1`, sentAt: new Date(this.d.clock.now()) })
+        .where(eq(commands.id, cmd.id))
+        .catch(() => {});
+      await this.d.send(board.serial, cmd).catch((e) => {
+        lastErr = `could not send: ${(e as Error).message}`;
+      });
+      const a = await ack;
+      if (a?.ok) return;
+      if (a && !a.ok) throw new Error(`the board refused: ${a.error ?? 'no reason given'}`);
+      lastErr = `no acknowledgement from ${board.name} after ${i + 1} tries`;
+    }
+    throw new Error(lastErr);
+  }
+
+  /** Close a zone (or drop it from the queue). */
+  async close(zoneId: number, siteId: number, why: 'completed' | 'stopped' | 'rain', actor?: Actor | null): Promise<boolean> {
+    const s = this.site(siteId);
+    const qi = s.queue.findIndex((q) => q.zoneId === zoneId);
+    if (qi >= 0) {
+      const [q] = s.queue.splice(qi, 1);
+      await this.d.db.update(commands).set({ state: 'cancelled' }).where(eq(commands.id, q.commandId));
+      const board = this.d.fleet.getById(q.controllerId);
+      if (board) this.emitCommand(board, q, 'cancelled', 'Removed from the queue');
+      q.onOutcome?.({ kind: 'closed', at: this.d.clock.now(), why: why === 'completed' ? 'stopped' : why });
+      return true;
+    }
+    const a = s.active.get(zoneId);
+    const loc = this.d.fleet.relayOfZone(zoneId);
+    const board = a ? this.d.fleet.getById(a.controllerId) : loc?.board;
+    const relay = a?.relay ?? loc?.relay;
+    if (!board || !relay) return false;
+    if (a) {
+      if (a.closeTimer) this.d.clock.clearTimeout(a.closeTimer);
+      a.state = 'closing';
+      a.closeWhy = why;
+    }
+    const id = randomUUID();
+    try {
+      await this.d.db.insert(commands).values({ id, controllerId: board.controllerId, zoneId, op: 'close', relay, origin: a?.origin ?? 'manual', requestedBy: actor?.userId || null, state: 'queued' });
+      await this.sendWithAck(board, () => ({ v: 1, id, op: 'close', relay, at: new Date(this.d.clock.now()).toISOString() }), false);
+      await this.d.db.update(commands).set({ state: 'acked', ackedAt: new Date(this.d.clock.now()) }).where(eq(commands.id, id));
+      if (actor) await recordAudit(this.d.db, actor, { action: 'valve.close', entityType: 'zone', entityId: zoneId, siteId, outcome: 'acked' });
+    } catch (err) {
+      // The board's failsafe will still close it at the commanded maximum on-time.
+      await this.d.db.update(commands).set({ state: 'failed', error: (err as Error).message.slice(0, 300) }).where(eq(commands.id, id)).catch(() => {});
+      if (actor) await recordAudit(this.d.db, actor, { action: 'valve.close', entityType: 'zone', entityId: zoneId, siteId, outcome: 'failed' }).catch(() => {});
+      this.d.log.warn({ zoneId, err: (err as Error).message }, 'close not acknowledged; board failsafe will close it');
+      return false;
+    }
+    if (a) this.finish(board, a, { kind: 'closed', at: this.d.clock.now(), why });
+    return true;
+  }
+
+  /** Close every valve of a site and empty its queue. */
+  async stopSite(siteId: number, why: 'stopped' | 'rain', actor?: Actor | null): Promise<void> {
+    const s = this.site(siteId);
+    for (const q of [...s.queue]) await this.close(q.zoneId, siteId, why, actor);
+    const openZones = new Set<number>([...s.active.keys()]);
+    for (const b of this.d.fleet.ofSite(siteId)) {
+      b.relays.forEach((r, i) => {
+        const z = b.zoneByRelay.get(i + 1);
+        if (r.open && z) openZones.add(z);
+      });
+    }
+    await Promise.all([...openZones].map((z) => this.close(z, siteId, why, actor)));
+  }
+
+  /** A zone's run is over: drop it, report once, then release what it held. */
+  private finish(board: BoardLive, a: Active, o: ZoneOutcome) {
+    if (a.done) return;
+    a.done = true;
+    if (a.closeTimer) this.d.clock.clearTimeout(a.closeTimer);
+    const s = this.site(board.siteId);
+    if (s.active.get(a.zoneId) === a) s.active.delete(a.zoneId);
+    a.onOutcome?.(o);
+    void this.afterRelease(board);
+  }
+
+  /** After a zone stops: close the master valve when nothing else runs on the controller, then admit queued zones. */
+  private async afterRelease(board: BoardLive) {
+    const s = this.site(board.siteId);
+    const stillOnBoard = [...s.active.values()].some((a) => a.controllerId === board.controllerId);
+    const m = this.masters.get(board.controllerId);
+    if (board.masterValveRelay && !stillOnBoard && (m?.open || board.relays[board.masterValveRelay - 1]?.open)) {
+      this.masters.delete(board.controllerId);
+      const id = randomUUID();
+      await this.sendWithAck(board, () => ({ v: 1, id, op: 'close', relay: board.masterValveRelay!, at: new Date(this.d.clock.now()).toISOString() }), false).catch(
+        (err) => this.d.log.warn({ err: (err as Error).message }, 'master valve close not acknowledged'),
+      );
+    }
+    await this.pump(board.siteId);
+  }
+
+  /** Admit queued zones that now fit, in order. */
+  private async pump(siteId: number) {
+    const s = this.site(siteId);
+    if (!s.queue.length) return;
+    const [site] = await this.d.db.select().from(sites).where(eq(sites.id, siteId));
+    if (!site) return;
+    const usable = usableSupply(site.supplyFlowLpm, site.supplyMarginPct);
+    for (const q of [...s.queue]) {
+      const board = this.d.fleet.getById(q.controllerId);
+      if (!board) continue;
+      if (!board.online) continue;
+      if (this.blocker(s, board, q, usable)) continue;
+      s.queue.splice(s.queue.indexOf(q), 1);
+      this.emitCommand(board, q, 'sent');
+      this.launch(s, board, q);
+    }
+  }
+
+  private emitCommand(board: BoardLive, a: Pick<Active, 'commandId' | 'zoneId' | 'actor'>, state: 'queued' | 'sent' | 'acked' | 'failed' | 'cancelled', message?: string) {
+    this.d.bus.publish({
+      type: 'command', siteId: board.siteId, commandId: a.commandId, zoneId: a.zoneId, controllerId: board.controllerId,
+      op: 'open', state, message, userId: a.actor?.userId ?? null,
+    });
+  }
+
+  /** What is open or waiting at a site, for snapshots and the API. */
+  siteActivity(siteId: number) {
+    const s = this.site(siteId);
+    return {
+      active: [...s.active.values()].map((a) => ({ zoneId: a.zoneId, controllerId: a.controllerId, relay: a.relay, state: a.state, plannedEnd: a.plannedEnd, origin: a.origin, flowLpm: a.flowLpm })),
+      queue: s.queue.map((q, i) => ({ zoneId: q.zoneId, controllerId: q.controllerId, position: i + 1, seconds: q.seconds, origin: q.origin, commandId: q.commandId })),
+    };
+  }
+
+  // ---- what the boards report (ValveListener) ----
+
+  acknowledged(_board: BoardLive, a: Ack) {
+    this.acks.get(a.id)?.(a);
+  }
+
+  relayChanged(board: BoardLive, e: BoardEvent, atMs: number) {
+    const s = this.site(board.siteId);
+    const zoneId = board.zoneByRelay.get(e.relay);
+    if (e.relay === board.masterValveRelay) {
+      if (!e.open) this.masters.delete(board.controllerId);
+      return;
+    }
+    if (!zoneId) return;
+    const a = s.active.get(zoneId);
+    if (!e.open && a && a.state !== 'opening') {
+      const why = a.state === 'closing' ? a.closeWhy ?? 'stopped' : e.source === 'failsafe' ? 'failsafe' : e.source === 'button' ? 'button' : 'board';
+      this.finish(board, a, { kind: 'closed', at: atMs, why });
+    } else if (e.open && !a && e.source === 'button') {
+      // Someone opened it at the board: it counts against the caps until it closes.
+      s.active.set(zoneId, this.adopted(board, e.relay, zoneId, 'button', atMs + 600_000));
+    }
+  }
+
+  relayState(board: BoardLive, st: RelayState) {
+    const s = this.site(board.siteId);
+    st.relays.forEach((r, i) => {
+      const relay = i + 1;
+      const zoneId = board.zoneByRelay.get(relay);
+      if (!zoneId) return;
+      const a = s.active.get(zoneId);
+      if (r.open && !a) {
+        s.active.set(zoneId, this.adopted(board, relay, zoneId, 'adopted', r.closesAt ? Date.parse(r.closesAt) + board.clockOffsetMs : null));
+      } else if (!r.open && a && a.state === 'open') {
+        this.finish(board, a, { kind: 'closed', at: this.d.clock.now(), why: 'board' });
+      }
+    });
+  }
+
+  private adopted(board: BoardLive, relay: number, zoneId: number, origin: Origin, plannedEnd: number | null): Active {
+    return {
+      zoneId, controllerId: board.controllerId, relay, flowLpm: 0, commandId: '', seconds: 0, state: 'open',
+      plannedEnd, closeTimer: null, origin, actor: null,
+    };
+  }
+
+  rainChanged(_board: BoardLive, _tripped: boolean, _atMs: number) {
+    /* the scheduler's rain hold listens to this (see server/scheduler) */
+  }
+
+  onlineChanged(board: BoardLive, online: boolean) {
+    if (online) void this.pump(board.siteId);
+  }
+
+  stop() {
+    this.stopped = true;
+    for (const s of this.sites.values()) for (const a of s.active.values()) if (a.closeTimer) this.d.clock.clearTimeout(a.closeTimer);
+  }
+}
+
+const round1 = (v: number) => Math.round(v * 10) / 10;

@@ -1,0 +1,12 @@
+import type { Gateway } from '../../gateway/index';
+import type { Fleet } from '../fleet/fleet';
+import type { LiveBus } from '../live/bus';
+import type { ValveDispatcher } from './dispatcher';
+
+/** The live parts a running server has, handed to routes through AppDeps.services. */
+export type Services = {
+  fleet: Fleet;
+  bus: LiveBus;
+  gateway: Gateway;
+  dispatcher: ValveDispatcher;
+};

@@ -1,0 +1,132 @@
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import mqtt, { type MqttClient } from 'mqtt';
+import { sql } from 'drizzle-orm';
+import { topicFor } from '../../server/contracts/protocol';
+import { startLiveWorld, until, type LiveWorld } from '../helpers/live';
+
+let w: LiveWorld;
+const clients: MqttClient[] = [];
+
+beforeAll(async () => {
+  w = await startLiveWorld();
+});
+afterAll(async () => {
+  for (const c of clients) c.end(true);
+  await w.close();
+});
+
+function connect(clientId: string, username: string | undefined, password: string | undefined) {
+  const c = mqtt.connect(w.rt.mqttUrl!, { clientId, username, password, reconnectPeriod: 0, connectTimeout: 3000 });
+  clients.push(c);
+  return new Promise<MqttClient>((ok, fail) => {
+    c.once('connect', () => ok(c));
+    c.once('error', (e) => fail(e));
+    c.once('close', () => fail(new Error('closed')));
+  });
+}
+const boardA = () => w.boards.find((b) => b.serial === 'TEST-A-0001')!;
+const boardB = () => w.boards.find((b) => b.serial === 'TEST-B-0001')!;
+const readingsOf = async (serial: string) =>
+  (await w.tdb.db.execute(sql`select count(*)::int as n from readings r join controllers c on c.id = r.controller_id where c.serial = ${serial}`)).rows[0].n as number;
+
+const sample = (at = new Date()) => ({ at: at.toISOString(), rain: false, moistureRaw: 1800, moisturePct: 31.5, supplyV: 25.1, flowLpm: 0, rssi: -61 });
+const telemetry = (seq: number, n = 3) => JSON.stringify({ v: 1, seq, at: new Date().toISOString(), samples: Array.from({ length: n }, () => sample()) });
+
+describe('board credentials', () => {
+  it('refuses a wrong secret', async () => {
+    await expect(connect(boardA().serial, boardA().serial, 'not-the-secret')).rejects.toThrow(/Bad username or password|Not authorized|closed/i);
+  });
+  it('refuses a missing password', async () => {
+    await expect(connect(boardA().serial, boardA().serial, undefined)).rejects.toThrow();
+  });
+  it('refuses a user name that is not the client id', async () => {
+    await expect(connect(boardA().serial, boardB().serial, boardB().secret)).rejects.toThrow();
+  });
+  it('refuses an unknown serial', async () => {
+    await expect(connect('NOPE-0001', 'NOPE-0001', 'whatever')).rejects.toThrow();
+  });
+  it('accepts the right secret and marks the controller online', async () => {
+    const c = await connect(boardA().serial, boardA().serial, boardA().secret);
+    await c.publishAsync(topicFor(boardA().serial, 'status'), JSON.stringify({ v: 1, online: true, firmware: '2.0.0', at: new Date().toISOString() }), { qos: 1, retain: true });
+    const r = await w.tdb.db.execute(sql`select online, firmware_version from controllers where serial = ${boardA().serial}`);
+    expect(r.rows[0]).toEqual({ online: true, firmware_version: '2.0.0' });
+    c.end(true);
+  });
+});
+
+describe('topic ACL', () => {
+  it('does not let board A subscribe to board B’s commands or to $SYS', async () => {
+    const a = await connect(boardA().serial, boardA().serial, boardA().secret);
+    const granted = await new Promise<number[]>((ok) =>
+      a.subscribe([topicFor(boardB().serial, 'cmd'), '$SYS/#', topicFor(boardA().serial, 'cmd')], { qos: 1 }, (err, g) => {
+        // mqtt.js reports refused subscriptions as an error carrying the SUBACK
+        const packet = (err as unknown as { packet?: { granted: number[] } })?.packet;
+        ok(packet?.granted ?? (g ?? []).map((x) => x.qos));
+      }),
+    );
+    expect(granted).toEqual([128, 128, 1]);
+    a.end(true);
+  });
+
+  it('does not let board A publish under board B’s topics', async () => {
+    const before = await readingsOf(boardB().serial);
+    const a = await connect(boardA().serial, boardA().serial, boardA().secret);
+    const closed = new Promise((r) => a.once('close', r));
+    a.publish(topicFor(boardB().serial, 'telemetry'), telemetry(1), { qos: 1 });
+    await closed; // the broker drops a board that breaks its ACL
+    expect(await readingsOf(boardB().serial)).toBe(before);
+    expect(w.rt.gateway.stats.dropped.acl_publish).toBeGreaterThan(0);
+  });
+});
+
+describe('message handling', () => {
+  it('counts and drops malformed and oversized payloads without crashing, then stores a good one', async () => {
+    const stats = w.rt.gateway.stats;
+    const malformed0 = stats.dropped.malformed;
+    const oversized0 = stats.dropped.oversized;
+    const b = await connect(boardB().serial, boardB().serial, boardB().secret);
+    const t = topicFor(boardB().serial, 'telemetry');
+    await b.publishAsync(t, 'not json at all', { qos: 1 });
+    await b.publishAsync(t, JSON.stringify({ v: 1, seq: 'x', at: 'yesterday', samples: [] }), { qos: 1 });
+    await b.publishAsync(t, JSON.stringify({ v: 2, seq: 5, at: new Date().toISOString(), samples: [sample()] }), { qos: 1 });
+    await b.publishAsync(topicFor(boardB().serial, 'event'), JSON.stringify({ v: 1, seq: 6, at: new Date().toISOString(), kind: 'relay', relay: 12, open: true, source: 'button', cmdId: null }), { qos: 1 });
+    await b.publishAsync(t, Buffer.alloc(20_000, 0x7b), { qos: 1 });
+    expect(stats.dropped.malformed - malformed0).toBe(4);
+    expect(stats.dropped.oversized - oversized0).toBe(1);
+    const before = await readingsOf(boardB().serial);
+    await b.publishAsync(t, telemetry(100, 4), { qos: 1 });
+    expect(await readingsOf(boardB().serial)).toBe(before + 4);
+    b.end(true);
+  });
+
+  it('drops a duplicate sequence number and counts a gap', async () => {
+    const stats = w.rt.gateway.stats;
+    const dup0 = stats.dropped.duplicate;
+    const gaps0 = stats.gaps;
+    const b = await connect(boardB().serial, boardB().serial, boardB().secret);
+    const t = topicFor(boardB().serial, 'telemetry');
+    const before = await readingsOf(boardB().serial);
+    await b.publishAsync(t, telemetry(200, 2), { qos: 1 });
+    await b.publishAsync(t, telemetry(200, 2), { qos: 1 });
+    await b.publishAsync(t, telemetry(205, 2), { qos: 1 });
+    expect(await readingsOf(boardB().serial)).toBe(before + 4);
+    expect(stats.dropped.duplicate - dup0).toBe(1);
+    expect(stats.gaps - gaps0).toBe(4 + 99); // 101…199 after seq 100, then 201…204
+    const r = await w.tdb.db.execute(sql`select last_seq from controllers where serial = ${boardB().serial}`);
+    expect(Number(r.rows[0].last_seq)).toBe(205);
+    b.end(true);
+  });
+
+  it('marks a board offline when its connection drops without a goodbye (last-will)', async () => {
+    const b = mqtt.connect(w.rt.mqttUrl!, {
+      clientId: boardB().serial, username: boardB().serial, password: boardB().secret, reconnectPeriod: 0,
+      will: { topic: topicFor(boardB().serial, 'status'), payload: Buffer.from(JSON.stringify({ v: 1, online: false })), qos: 1, retain: true },
+    });
+    await new Promise((r) => b.once('connect', r));
+    await b.publishAsync(topicFor(boardB().serial, 'status'), JSON.stringify({ v: 1, online: true, at: new Date().toISOString() }), { qos: 1, retain: true });
+    await until(async () => (await w.tdb.db.execute(sql`select online from controllers where serial = ${boardB().serial}`)).rows[0].online === true);
+    (b as unknown as { stream: { destroy: () => void } }).stream.destroy();
+    await until(async () => (await w.tdb.db.execute(sql`select online from controllers where serial = ${boardB().serial}`)).rows[0].online === false);
+    b.end(true);
+  });
+});
