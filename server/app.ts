@@ -99,7 +99,7 @@ export function createApp(deps: AppDeps): BuiltApp {
   const clientDir = deps.clientDir ?? defaultClientDir;
   if (fs.existsSync(path.join(clientDir, 'index.html'))) {
     app.use(express.static(clientDir, { index: false, maxAge: '1h' }));
-    app.get('/*splat', (_req, res) => res.sendFile(path.join(clientDir, 'index.html')));
+    app.get('/{*splat}', (_req, res) => res.sendFile(path.join(clientDir, 'index.html')));
   }
   app.use(errorHandler(log));
   return { app, sessionMiddleware };

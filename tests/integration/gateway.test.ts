@@ -71,7 +71,7 @@ describe('topic ACL', () => {
   it('does not let board A publish under board B’s topics', async () => {
     const before = await readingsOf(boardB().serial);
     const a = await connect(boardA().serial, boardA().serial, boardA().secret);
-    const closed = new Promise((r) => a.once('close', r));
+    const closed = new Promise<void>((r) => a.once('close', () => r()));
     a.publish(topicFor(boardB().serial, 'telemetry'), telemetry(1), { qos: 1 });
     await closed; // the broker drops a board that breaks its ACL
     expect(await readingsOf(boardB().serial)).toBe(before);

@@ -1,0 +1,26 @@
+import type { RouteLocationRaw } from 'vue-router';
+import type { Role } from '../types/api';
+
+export type NavEntry = {
+  label: string;
+  icon: string;
+  to: RouteLocationRaw;
+  /** Roles that see the entry; keep in step with the route's meta.roles. */
+  roles: readonly Role[];
+  /** data-test suffix: nav-<key>. */
+  key: string;
+};
+
+const everyone: readonly Role[] = ['admin', 'manager', 'technician', 'owner'];
+
+/**
+ * The one list of navigation entries. Add Programs, History, Alerts, Calculator … here when
+ * their pages exist; only link to pages that exist.
+ */
+export const navEntries: readonly NavEntry[] = [
+  { key: 'fleet', label: 'Fleet', icon: 'grid_view', to: { name: 'fleet' }, roles: everyone },
+];
+
+export function navFor(role: Role | null): NavEntry[] {
+  return role ? navEntries.filter((e) => e.roles.includes(role)) : [];
+}

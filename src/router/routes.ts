@@ -1,0 +1,37 @@
+import type { RouteRecordRaw } from 'vue-router';
+import type { Role } from '../types/api';
+
+declare module 'vue-router' {
+  interface RouteMeta {
+    /** Reachable without signing in. */
+    public?: boolean;
+    /** Roles that may open the page; every signed-in role when absent. */
+    roles?: Role[];
+    title?: string;
+  }
+}
+
+export const routes: RouteRecordRaw[] = [
+  {
+    path: '/sign-in',
+    name: 'sign-in',
+    component: () => import('../pages/SignInPage.vue'),
+    meta: { public: true, title: 'Sign in' },
+  },
+  {
+    path: '/',
+    component: () => import('../layouts/MainLayout.vue'),
+    children: [
+      { path: '', name: 'fleet', component: () => import('../pages/FleetPage.vue'), meta: { title: 'Fleet' } },
+      {
+        path: 'sites/:id(\\d+)',
+        name: 'site',
+        component: () => import('../pages/SitePage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Site' },
+      },
+      // Programs, History, Alerts, Calculator … are added here with their pages (and in layouts/nav.ts).
+      { path: ':rest(.*)*', name: 'not-found', component: () => import('../pages/NotFoundPage.vue'), meta: { title: 'Not found' } },
+    ],
+  },
+];
