@@ -104,7 +104,8 @@ CONF
   fi
   if ! as_postgres "$bin/pg_ctl" -D "$data" status >/dev/null 2>&1; then
     log "starting PostgreSQL ($data, 127.0.0.1:$port)"
-    as_postgres "$bin/pg_ctl" -D "$data" -l "$data/server.log" -w -t 60 start >/dev/null \
+    # setsid: a Ctrl-C in the terminal reaches the server, which stops first; we stop PostgreSQL after it.
+    as_postgres setsid "$bin/pg_ctl" -D "$data" -l "$data/server.log" -w -t 60 start >/dev/null \
       || { tail -20 "$data/server.log" >&2; die "PostgreSQL did not start"; }
     PG_STARTED_BY_US=1
   fi

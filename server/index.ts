@@ -5,7 +5,11 @@ import { startRuntime } from './runtime';
 try {
   const config = loadConfig();
   const rt = await startRuntime(config);
-  rt.log.info({ url: rt.url }, 'Runnel is listening');
+  rt.log.info({ url: rt.url, mqtt: rt.mqttUrl }, 'Runnel is listening');
+  if (config.RUNNEL_DEMO && config.SIMULATOR) {
+    const { startDemoFleet } = await import('./demo');
+    await startDemoFleet(rt);
+  }
   let stopping = false;
   const stop = async (signal: string) => {
     if (stopping) return;

@@ -154,9 +154,10 @@ export class ReadingWriter {
     }
   }
 
+  /** Write what is buffered (one attempt per batch once closing), then refuse new work. */
   async close(): Promise<void> {
-    await this.flush();
     this.closed = true;
+    await this.flush();
   }
 }
 
