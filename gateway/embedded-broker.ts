@@ -92,7 +92,11 @@ export async function startEmbeddedBroker(opts: {
     if (serialSchema.safeParse(client.id).success) void sink.offline(client.id, 'disconnect', new Date()).catch(() => {});
   });
   broker.on('clientError', (client, err) => log.debug({ serial: client.id, err: err.message }, 'board connection error'));
-  const server = net.createServer(broker.handle);
+  // Small PUBACK/SUBACK replies must not wait for Nagle's algorithm.
+  const server = net.createServer((socket) => {
+    socket.setNoDelay(true);
+    broker.handle(socket);
+  });
   await new Promise<void>((ok, fail) => {
     server.once('error', fail);
     server.listen(opts.port, opts.host, () => ok());

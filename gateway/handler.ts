@@ -63,7 +63,8 @@ export class ProtocolHandler {
     if (typeof msg.seq === 'number' && t.kind !== 'state') {
       const last = this.lastSeq.get(serial) ?? 0;
       if (msg.seq <= last) return this.drop(serial, 'duplicate', `seq ${msg.seq} ≤ ${last}`);
-      if (msg.seq > last + 1 && last > 0) {
+      // A board counts from its power-on clock, so a big jump is a restart, not lost messages.
+      if (msg.seq > last + 1 && last > 0 && msg.seq - last < 1_000_000) {
         const missing = msg.seq - last - 1;
         this.stats.gaps += missing;
         this.sink.gap(serial, missing);

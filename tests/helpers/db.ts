@@ -1,7 +1,8 @@
 import pg from 'pg';
 import { randomBytes } from 'node:crypto';
 import { createDb, type DbHandle } from '../../server/db/client';
-import { adminUrl, TEMPLATE_DB } from './global-setup';
+import { inject } from 'vitest';
+import { adminUrl } from './global-setup';
 
 export type TestDb = DbHandle & { url: string; name: string; drop: () => Promise<void> };
 
@@ -11,7 +12,7 @@ export async function createTestDb(): Promise<TestDb> {
   const name = `runnel_t_${randomBytes(5).toString('hex')}`;
   const admin = new pg.Client({ connectionString: `${base}/postgres` });
   await admin.connect();
-  await admin.query(`create database "${name}" template "${TEMPLATE_DB}"`);
+  await admin.query(`create database "${name}" template "${inject('templateDb')}"`);
   await admin.end();
   const url = `${base}/${name}`;
   const dbh = createDb(url, { max: 10 });

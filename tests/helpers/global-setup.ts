@@ -6,7 +6,7 @@ import { runMigrations } from '../../server/db/migrate';
  * Builds one migrated template database per test run; every test file then clones it
  * (CREATE DATABASE … TEMPLATE), which takes a few milliseconds and keeps files isolated.
  */
-export const TEMPLATE_DB = 'runnel_test_template';
+export const TEMPLATE_PREFIX = 'runnel_tpl_';
 
 export function adminUrl(): string {
   const u = process.env.TEST_ADMIN_DATABASE_URL;
@@ -14,16 +14,34 @@ export function adminUrl(): string {
   return u;
 }
 
-export default async function setup() {
+/** Each run has its own template, so two runs on one machine never touch each other's databases. */
+export default async function setup({ provide }: { provide: (key: 'templateDb', value: string) => void }) {
   const base = adminUrl();
+  const name = `${TEMPLATE_PREFIX}${process.pid}_${Date.now().toString(36)}`;
   const admin = new pg.Client({ connectionString: `${base}/postgres` });
   await admin.connect();
-  // Drop what an earlier, interrupted run left behind.
-  const old = await admin.query(`select datname from pg_database where datname like 'runnel_t_%' or datname = $1`, [TEMPLATE_DB]);
-  for (const r of old.rows) await admin.query(`drop database if exists "${r.datname}" with (force)`);
-  await admin.query(`create database "${TEMPLATE_DB}"`);
+  // Drop what earlier, interrupted runs left behind: databases nobody is connected to.
+  const old = await admin.query(
+    `select datname from pg_database d where (datname like 'runnel_t_%' or datname like '${TEMPLATE_PREFIX}%')
+       and not exists (select 1 from pg_stat_activity a where a.datname = d.datname)`,
+  );
+  for (const r of old.rows) await admin.query(`drop database if exists "${r.datname}"`).catch(() => {});
+  await admin.query(`create database "${name}"`);
   await admin.end();
-  const dbh = createDb(`${base}/${TEMPLATE_DB}`, { max: 1 });
+  const dbh = createDb(`${base}/${name}`, { max: 1 });
   await runMigrations(dbh.db);
   await dbh.close();
+  provide('templateDb', name);
+  return async () => {
+    const a = new pg.Client({ connectionString: `${base}/postgres` });
+    await a.connect();
+    await a.query(`drop database if exists "${name}" with (force)`).catch(() => {});
+    await a.end();
+  };
+}
+
+declare module 'vitest' {
+  export interface ProvidedContext {
+    templateDb: string;
+  }
 }

@@ -1,0 +1,356 @@
+import { MAX_SAMPLES_PER_TELEMETRY, commandSchema, type Command, type Sample } from '../server/contracts/protocol';
+import { realClock, type Clock } from './clock';
+import { FaultState, type FaultChange, type FaultView } from './faults';
+import { SensorModel, nominalFlowLpm } from './physics';
+import { Rng, boardSeed } from './prng';
+import { RelayBank, type RelaySource } from './relays';
+import type { BoardSpec } from './spec';
+import { Uplink, type BoardLog } from './uplink';
+
+export type { BoardLog } from './uplink';
+
+export type SimBoardOptions = {
+  brokerUrl: string;
+  /** Simulation seed; with the serial it seeds this board's generator. Default 1. */
+  seed?: number;
+  clock?: Clock;
+  sampleIntervalMs?: number;
+  samplesPerMessage?: number;
+  /** Offline buffer size in messages (default 10,000). */
+  bufferLimit?: number;
+  /** Failsafe for a relay opened by the local button (default 600 s). */
+  buttonMaxOnSeconds?: number;
+  /** First sequence number; default the clock in ms when the board is made, so a restarted board continues above. */
+  seqStart?: number;
+  /** Wait between reconnect attempts; default 1–2 s, fixed per board by its seed. */
+  reconnectPeriodMs?: number;
+  keepaliveSeconds?: number;
+  log?: BoardLog;
+};
+
+export type BoardStats = {
+  /** Messages the broker acknowledged (PUBACK), by kind. */
+  published: { ack: number; state: number; status: number; telemetry: number; event: number };
+  samplesTaken: number;
+  /** Samples in telemetry the broker acknowledged. */
+  samplesSent: number;
+  /** Samples waiting in the offline buffer now. */
+  samplesBuffered: number;
+  /** Messages (and samples) the full offline buffer threw away. */
+  dropped: number;
+  samplesDropped: number;
+  reconnects: number;
+};
+
+export type RelayView = { relay: number; open: boolean; since: string | null; closesAt: string | null; cmdId: string | null };
+
+const RECENT_COMMANDS = 64;
+type Outcome = { ok: boolean; error?: string };
+
+/**
+ * One simulated relay board: one MQTT client, relays with failsafe timers, a local button,
+ * sensors, an offline buffer and switchable faults. Every board→server message carries the next
+ * value of one sequence counter and board time. Per command the board publishes its relay
+ * event(s) first, then the retained state, then the ack.
+ */
+export class SimBoard {
+  readonly serial: string;
+  private readonly clock: Clock;
+  private readonly sampleIntervalMs: number;
+  private readonly samplesPerMessage: number;
+  private readonly buttonMaxOnMs: number;
+  private readonly reconnectPeriodMs: number;
+  private readonly log?: BoardLog;
+  private readonly uplink: Uplink;
+  private readonly faultState = new FaultState();
+  private readonly bank: RelayBank;
+  private readonly sensors: SensorModel;
+  private readonly phaseMs: number;
+  private powered = false;
+  private startedOnce = false;
+  private rain = false;
+  private batch: Sample[] = [];
+  private latest: Sample | null = null;
+  private sampleTimer: unknown = null;
+  private nextSampleMs = 0;
+  private recent = new Map<string, Outcome>();
+  private samplesTaken = 0;
+
+  constructor(
+    readonly spec: BoardSpec,
+    private readonly opts: SimBoardOptions,
+  ) {
+    this.serial = spec.serial;
+    this.clock = opts.clock ?? realClock;
+    this.sampleIntervalMs = opts.sampleIntervalMs ?? 1000;
+    this.samplesPerMessage = opts.samplesPerMessage ?? 5;
+    if (!(this.sampleIntervalMs >= 1)) throw new RangeError('sampleIntervalMs must be at least 1');
+    if (!Number.isInteger(this.samplesPerMessage) || this.samplesPerMessage < 1 || this.samplesPerMessage > MAX_SAMPLES_PER_TELEMETRY)
+      throw new RangeError(`samplesPerMessage must be 1–${MAX_SAMPLES_PER_TELEMETRY}`);
+    this.buttonMaxOnMs = (opts.buttonMaxOnSeconds ?? 600) * 1000;
+    this.log = opts.log;
+    const seed = boardSeed(opts.seed ?? 1, spec.serial);
+    this.sensors = new SensorModel(new Rng(seed));
+    const timing = new Rng(seed ^ 0x9e3779b9);
+    this.phaseMs = Math.floor(timing.float() * this.sampleIntervalMs);
+    this.reconnectPeriodMs = opts.reconnectPeriodMs ?? 1000 + Math.floor(timing.float() * 1000);
+    this.bank = new RelayBank(spec.relayCount, this.clock, (r) => this.faultState.stuck.has(r), (r) => this.onFailsafe(r));
+    this.uplink = new Uplink(
+      {
+        serial: spec.serial,
+        secret: spec.secret,
+        firmware: spec.firmware ?? 'sim-1.0.0',
+        relayCount: spec.relayCount,
+        boardIso: () => this.boardIso(),
+        relays: () => this.relayStates().map(({ open, since, closesAt, cmdId }) => ({ open, since, closesAt, cmdId })),
+        networkUp: () => !this.faultState.offline,
+        onCommand: (payload) => this.onCommand(payload),
+      },
+      opts.seqStart ?? Math.floor(this.clock.now()),
+      opts.bufferLimit ?? 10_000,
+      opts.log,
+    );
+  }
+
+  // ---- lifecycle -------------------------------------------------------------------------
+
+  /** Power on: start sampling and connect. Settles once connected and subscribed (or stopped). */
+  start(): Promise<void> {
+    if (this.startedOnce) return this.uplink.started;
+    this.powered = true;
+    this.startedOnce = true;
+    this.nextSampleMs = this.clock.now() + this.phaseMs;
+    this.sampleTimer = this.clock.setTimeout(() => this.tick(), this.phaseMs);
+    this.uplink.connect(this.opts.brokerUrl, { keepaliveSeconds: this.opts.keepaliveSeconds ?? 30, reconnectPeriodMs: this.reconnectPeriodMs });
+    return this.uplink.started;
+  }
+
+  /** Power off: sends the samples taken so far; with a link, says offline (retained) and disconnects cleanly. */
+  async stop(): Promise<void> {
+    if (this.powered) this.flushBatch();
+    this.powered = false;
+    if (this.sampleTimer !== null) this.clock.clearTimeout(this.sampleTimer);
+    this.sampleTimer = null;
+    this.bank.disarmAll();
+    await this.uplink.close();
+  }
+
+  get online(): boolean {
+    return this.uplink.online;
+  }
+
+  // ---- what tests and the control API see -------------------------------------------------
+
+  get energizeLog(): readonly { relay: number; atMs: number }[] {
+    return this.bank.energizeLog;
+  }
+
+  get stats(): BoardStats {
+    const c = this.uplink.counters;
+    const buf = this.uplink.buffer;
+    return {
+      published: { ...c.published },
+      samplesTaken: this.samplesTaken,
+      samplesSent: c.samplesSent,
+      samplesBuffered: buf.samplesQueued,
+      dropped: buf.dropped,
+      samplesDropped: buf.samplesDropped,
+      reconnects: c.reconnects,
+    };
+  }
+
+  relayStates(): RelayView[] {
+    return this.bank.snapshot().map((r) => ({
+      relay: r.relay,
+      open: r.open,
+      since: r.sinceMs === null ? null : this.boardIso(r.sinceMs),
+      closesAt: r.closesAtMs === null ? null : this.boardIso(r.closesAtMs),
+      cmdId: r.cmdId,
+    }));
+  }
+
+  get rainTripped(): boolean {
+    return this.rain;
+  }
+
+  latestSample(): Sample | null {
+    return this.latest;
+  }
+
+  faults(): FaultView {
+    return this.faultState.view();
+  }
+
+  /** Board time now (the clock plus any clock_skew), as ISO. */
+  boardIso(ms = this.clock.now()): string {
+    return new Date(ms + this.faultState.skewMinutes * 60_000).toISOString();
+  }
+
+  // ---- local inputs and faults ------------------------------------------------------------
+
+  /** The rain input. A change is sampled and reported at once rather than at the next batch. */
+  setRain(tripped: boolean): void {
+    if (this.rain === tripped) return;
+    this.rain = tripped;
+    if (!this.powered) return;
+    this.takeSample(0);
+    this.flushBatch();
+  }
+
+  /** Someone pressed the board's button for a relay. A button open gets the button failsafe. */
+  pressButton(relay: number, open: boolean): void {
+    this.requireRelay(relay);
+    if (open) {
+      if (this.bank.open(relay, this.buttonMaxOnMs, null)) this.uplink.event(relay, true, 'button', null);
+      this.uplink.state();
+    } else {
+      const r = this.bank.close(relay, 'button', null);
+      if (r === 'closed') this.uplink.event(relay, false, 'button', null);
+      if (r !== 'already_closed') this.uplink.state();
+    }
+  }
+
+  setFault(f: FaultChange): void {
+    const fs = this.faultState;
+    switch (f.fault) {
+      case 'offline':
+        fs.offline = f.on;
+        // Drop the TCP link without DISCONNECT: the broker fires the last-will.
+        if (f.on) this.uplink.dropLink();
+        break;
+      case 'no_ack':
+        fs.noAck = f.on;
+        break;
+      case 'low_voltage':
+        fs.lowVoltage = f.on;
+        break;
+      case 'clock_skew':
+        fs.skewMinutes = f.on ? (f.offsetMinutes ?? 0) : 0;
+        break;
+      case 'stuck_valve':
+      case 'broken_head':
+      case 'clogged': {
+        if (f.relay !== undefined) this.requireRelay(f.relay);
+        const set = f.fault === 'stuck_valve' ? fs.stuck : f.fault === 'broken_head' ? fs.broken : fs.clogged;
+        const cleared = f.on ? [] : f.relay === undefined ? [...set] : [f.relay];
+        if (f.on && f.relay !== undefined) set.add(f.relay);
+        for (const r of cleared) set.delete(r);
+        if (f.fault === 'stuck_valve') for (const r of cleared) this.finishRefusedClose(r);
+        break;
+      }
+    }
+  }
+
+  // ---- relays -----------------------------------------------------------------------------
+
+  private onCommand(payload: Buffer): void {
+    if (this.faultState.noAck || !this.powered) return;
+    let json: unknown;
+    try {
+      json = JSON.parse(payload.toString('utf8'));
+    } catch {
+      return this.log?.warn({ serial: this.serial }, 'command is not JSON; ignored');
+    }
+    const parsed = commandSchema.safeParse(json);
+    if (!parsed.success) {
+      const id = typeof json === 'object' && json !== null ? (json as { id?: unknown }).id : undefined;
+      if (typeof id !== 'string' || id.length < 8 || id.length > 64) return this.log?.warn({ serial: this.serial }, 'command without a usable id; ignored');
+      const why = parsed.error.issues.slice(0, 3).map((i) => `${i.path.join('.') || 'command'}: ${i.message}`).join('; ');
+      return this.uplink.ack(id, false, `invalid command: ${why}`.slice(0, 200));
+    }
+    const cmd = parsed.data;
+    // A command delivered twice (QoS 1) is answered again, not carried out again.
+    const seen = this.recent.get(cmd.id);
+    if (seen) return this.uplink.ack(cmd.id, seen.ok, seen.error);
+    const outcome = this.execute(cmd);
+    this.recent.set(cmd.id, outcome);
+    if (this.recent.size > RECENT_COMMANDS) this.recent.delete(this.recent.keys().next().value as string);
+    this.uplink.ack(cmd.id, outcome.ok, outcome.error);
+  }
+
+  private execute(cmd: Command): Outcome {
+    if (cmd.op === 'close_all') {
+      const stuck: number[] = [];
+      let touched = false;
+      for (const r of this.bank.openRelays()) {
+        const res = this.bank.close(r, 'command', cmd.id);
+        touched = true;
+        if (res === 'closed') this.uplink.event(r, false, 'command', cmd.id);
+        else if (res === 'stuck') stuck.push(r);
+      }
+      if (touched) this.uplink.state();
+      return stuck.length ? { ok: false, error: `relay ${stuck.join(', ')} did not close: valve stuck` } : { ok: true };
+    }
+    if (!this.bank.has(cmd.relay)) return { ok: false, error: `relay ${cmd.relay} does not exist: this board has ${this.bank.count} relays` };
+    if (cmd.op === 'open') {
+      if (this.bank.open(cmd.relay, cmd.maxOnSeconds * 1000, cmd.id)) this.uplink.event(cmd.relay, true, 'command', cmd.id);
+      this.uplink.state();
+      return { ok: true };
+    }
+    const res = this.bank.close(cmd.relay, 'command', cmd.id);
+    if (res === 'already_closed') return { ok: true };
+    if (res === 'closed') this.uplink.event(cmd.relay, false, 'command', cmd.id);
+    this.uplink.state();
+    return res === 'closed' ? { ok: true } : { ok: false, error: `relay ${cmd.relay} did not close: valve stuck` };
+  }
+
+  private onFailsafe(relay: number): void {
+    const cmdId = this.bank.cmdIdOf(relay);
+    const res = this.bank.close(relay, 'failsafe', cmdId);
+    if (res === 'closed') {
+      this.uplink.event(relay, false, 'failsafe', cmdId);
+      this.uplink.state();
+    } else if (res === 'stuck') this.log?.warn({ serial: this.serial, relay }, 'failsafe could not close a stuck valve');
+  }
+
+  /** A stuck valve was freed: carry out the close it refused. */
+  private finishRefusedClose(relay: number): void {
+    const pending = this.bank.takePendingClose(relay);
+    if (!pending || this.bank.close(relay, pending.source, pending.cmdId) !== 'closed') return;
+    this.uplink.event(relay, false, pending.source, pending.cmdId);
+    this.uplink.state();
+  }
+
+  private requireRelay(relay: number): void {
+    if (!this.bank.has(relay)) throw new RangeError(`relay ${relay} does not exist: this board has ${this.bank.count} relays`);
+  }
+
+  // ---- sensors ----------------------------------------------------------------------------
+
+  private tick(): void {
+    this.sampleTimer = null;
+    if (!this.powered) return;
+    this.takeSample(this.sampleIntervalMs / 1000);
+    if (this.batch.length >= this.samplesPerMessage) this.flushBatch();
+    const now = this.clock.now();
+    this.nextSampleMs += this.sampleIntervalMs;
+    if (this.nextSampleMs < now) this.nextSampleMs = now + this.sampleIntervalMs; // fell behind: skip, never burst
+    this.sampleTimer = this.clock.setTimeout(() => this.tick(), this.nextSampleMs - now);
+  }
+
+  /** One sample. Physics steps by the nominal interval (not wall time), so values depend on the seed only. */
+  private takeSample(dtSeconds: number): void {
+    const open = this.bank.openRelays();
+    const master = this.spec.masterValveRelay ?? null;
+    const watering = (master === null || open.includes(master)) && open.some((r) => r !== master);
+    const reading = this.sensors.sample({
+      dtSeconds,
+      raining: this.rain,
+      watering,
+      energisedCoils: open.length,
+      flowLpm: this.spec.hasFlowSensor ? nominalFlowLpm(open, this.spec.relayFlowsLpm, master, (r) => this.faultState.flowFactor(r)) : null,
+      lowVoltage: this.faultState.lowVoltage,
+    });
+    const sample: Sample = { at: this.boardIso(), ...reading };
+    this.batch.push(sample);
+    this.latest = sample;
+    this.samplesTaken++;
+  }
+
+  private flushBatch(): void {
+    if (!this.batch.length) return;
+    const samples = this.batch;
+    this.batch = [];
+    this.uplink.telemetry(samples);
+  }
+}

@@ -1,0 +1,194 @@
+import type { MqttClient } from 'mqtt';
+import {
+  PROTOCOL_VERSION,
+  topicFor,
+  type Ack,
+  type BoardEvent,
+  type BoardStatus,
+  type RelayState,
+  type Sample,
+  type Telemetry,
+} from '../server/contracts/protocol';
+import { createBoardClient } from './link';
+import { Outbox, type Outgoing } from './outbox';
+import type { RelaySource } from './relays';
+
+export type BoardLog = { info(obj: object, msg: string): void; warn(obj: object, msg: string): void };
+
+const OFFLINE_WILL = JSON.stringify({ v: PROTOCOL_VERSION, online: false });
+
+/** What the uplink needs from its board. */
+export type UplinkBoard = {
+  serial: string;
+  secret: string;
+  firmware: string;
+  relayCount: number;
+  boardIso(): string;
+  relays(): RelayState['relays'];
+  networkUp(): boolean;
+  onCommand(payload: Buffer): void;
+};
+
+/**
+ * A board's side of the protocol: its MQTT client, its one sequence counter and its offline
+ * buffer. Every message is made (seq, at) when the board decides to send it and is handed to
+ * mqtt.js exactly once — straight away with a link, or from the buffer after the reconnect.
+ */
+export class Uplink {
+  private client: MqttClient | null = null;
+  private linkUp = false;
+  private subscribed = false;
+  private everConnected = false;
+  private readonly outbox: Outbox;
+  readonly counters = { published: { ack: 0, state: 0, status: 0, telemetry: 0, event: 0 }, samplesSent: 0, reconnects: 0 };
+  private settleStart: () => void = () => {};
+  /** Settles when the board is first connected and subscribed (or stopped). */
+  readonly started: Promise<void>;
+
+  constructor(
+    private readonly b: UplinkBoard,
+    private seq: number,
+    bufferLimit: number,
+    private readonly log?: BoardLog,
+  ) {
+    this.outbox = new Outbox(bufferLimit);
+    this.started = new Promise((resolve) => (this.settleStart = resolve));
+  }
+
+  get online(): boolean {
+    return this.linkUp;
+  }
+
+  get buffer(): Pick<Outbox, 'samplesQueued' | 'dropped' | 'samplesDropped'> {
+    return this.outbox;
+  }
+
+  connect(brokerUrl: string, o: { keepaliveSeconds: number; reconnectPeriodMs: number }): void {
+    const b = this.b;
+    const c = createBoardClient(brokerUrl, b.networkUp, {
+      clientId: b.serial,
+      username: b.serial,
+      password: b.secret,
+      clean: false,
+      keepalive: o.keepaliveSeconds,
+      reconnectPeriod: o.reconnectPeriodMs,
+      connectTimeout: 15_000,
+      queueQoSZero: false,
+      will: { topic: topicFor(b.serial, 'status'), payload: Buffer.from(OFFLINE_WILL), qos: 1, retain: true },
+    });
+    const cmdTopic = topicFor(b.serial, 'cmd');
+    c.on('connect', () => this.onConnect());
+    c.on('close', () => (this.linkUp = false));
+    c.on('error', (err) => this.log?.warn({ serial: b.serial, err: err.message }, 'board link error'));
+    c.on('message', (topic, payload) => topic === cmdTopic && b.onCommand(payload));
+    this.client = c;
+    c.connect();
+  }
+
+  /** Drop the TCP link without DISCONNECT (the broker fires the last-will). */
+  dropLink(): void {
+    const s = this.client?.stream;
+    if (s && !s.destroyed) s.destroy();
+  }
+
+  /** With a link: a retained online:false, then a clean disconnect. */
+  async close(): Promise<void> {
+    this.settleStart();
+    const c = this.client;
+    if (!c) return;
+    if (this.linkUp) {
+      const status: BoardStatus = { v: PROTOCOL_VERSION, online: false, at: this.b.boardIso() };
+      await withTimeout(new Promise<void>((done) => c.publish(topicFor(this.b.serial, 'status'), JSON.stringify(status), { qos: 1, retain: true }, () => done())), 2000);
+    }
+    this.linkUp = false;
+    const clean = await withTimeout(c.endAsync(false).then(() => true), 2000);
+    if (!clean) await c.endAsync(true).catch(() => {});
+  }
+
+  // ---- messages ---------------------------------------------------------------------------
+
+  private nextSeq(): number {
+    return this.seq++;
+  }
+
+  telemetry(samples: Sample[]): void {
+    const m: Telemetry = { v: PROTOCOL_VERSION, seq: this.nextSeq(), at: this.b.boardIso(), samples };
+    this.send({ kind: 'telemetry', topic: topicFor(this.b.serial, 'telemetry'), payload: JSON.stringify(m), retain: false, samples: samples.length });
+  }
+
+  event(relay: number, open: boolean, source: RelaySource, cmdId: string | null): void {
+    const m: BoardEvent = { v: PROTOCOL_VERSION, seq: this.nextSeq(), at: this.b.boardIso(), kind: 'relay', relay, open, source, cmdId };
+    this.send({ kind: 'event', topic: topicFor(this.b.serial, 'event'), payload: JSON.stringify(m), retain: false, samples: 0 });
+  }
+
+  ack(id: string, ok: boolean, error?: string): void {
+    const m: Ack = { v: PROTOCOL_VERSION, id, ok, ...(error ? { error } : {}), seq: this.nextSeq(), at: this.b.boardIso() };
+    this.send({ kind: 'ack', topic: topicFor(this.b.serial, 'ack'), payload: JSON.stringify(m), retain: false, samples: 0 });
+  }
+
+  /** Retained relay state. Without a link none is made: a fresh one follows the reconnect. */
+  state(): void {
+    if (!this.linkUp) return;
+    const m: RelayState = { v: PROTOCOL_VERSION, seq: this.nextSeq(), at: this.b.boardIso(), relays: this.b.relays() };
+    this.send({ kind: 'state', topic: topicFor(this.b.serial, 'state'), payload: JSON.stringify(m), retain: true, samples: 0 });
+  }
+
+  private status(): void {
+    const m: BoardStatus = { v: PROTOCOL_VERSION, online: true, firmware: this.b.firmware, relayCount: this.b.relayCount, at: this.b.boardIso() };
+    this.send({ kind: 'status', topic: topicFor(this.b.serial, 'status'), payload: JSON.stringify(m), retain: true, samples: 0 });
+  }
+
+  /** Hand a message to mqtt.js now, or keep it in the offline buffer. */
+  private send(m: Outgoing): void {
+    if (!this.linkUp || !this.client) return this.outbox.push(m);
+    this.client.publish(m.topic, m.payload, { qos: 1, retain: m.retain }, (err) => {
+      if (err) return this.log?.warn({ serial: this.b.serial, kind: m.kind, err: err.message }, 'publish abandoned');
+      this.counters.published[m.kind]++;
+      this.counters.samplesSent += m.samples;
+    });
+  }
+
+  /**
+   * The broker accepted us. The first time, subscribe to commands before saying anything (the
+   * board counts as started once the subscription is granted); then status, everything
+   * buffered in order, and a fresh state.
+   */
+  private onConnect(): void {
+    const c = this.client;
+    if (!c) return;
+    if (this.subscribed) return this.onLinkUp();
+    c.subscribe(topicFor(this.b.serial, 'cmd'), { qos: 1 }, (err, granted) => {
+      if (err) return this.log?.warn({ serial: this.b.serial, err: err.message }, 'command subscription failed; retrying on reconnect');
+      if (granted?.some((g) => g.qos === 128)) this.log?.warn({ serial: this.b.serial }, 'command subscription refused by the broker');
+      this.subscribed = true;
+      this.settleStart();
+      if (c.connected) this.onLinkUp();
+    });
+  }
+
+  private onLinkUp(): void {
+    if (this.linkUp) return;
+    this.linkUp = true;
+    if (this.everConnected) this.counters.reconnects++;
+    this.everConnected = true;
+    this.status();
+    for (const m of this.outbox.drain()) this.send(m);
+    this.state();
+  }
+}
+
+function withTimeout<T>(p: Promise<T>, ms: number): Promise<T | false> {
+  return new Promise((resolve) => {
+    const t = setTimeout(() => resolve(false), ms);
+    p.then(
+      (v) => {
+        clearTimeout(t);
+        resolve(v);
+      },
+      () => {
+        clearTimeout(t);
+        resolve(false);
+      },
+    );
+  });
+}

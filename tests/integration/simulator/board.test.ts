@@ -1,0 +1,326 @@
+import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
+import { SimBoard, type SimBoardOptions } from '../../../simulator/board';
+import { ManualClock } from '../../../simulator/clock';
+import type { BoardSpec } from '../../../simulator/spec';
+import { sleep, startBroker, startServerClient, waitFor } from './broker';
+
+let broker: Awaited<ReturnType<typeof startBroker>>;
+let server: Awaited<ReturnType<typeof startServerClient>>;
+const running: SimBoard[] = [];
+let serialNo = 0;
+
+beforeAll(async () => {
+  broker = await startBroker();
+  server = await startServerClient(broker.url);
+});
+afterEach(async () => {
+  await Promise.all(running.splice(0).map((b) => b.stop()));
+});
+afterAll(async () => {
+  await server.close();
+  await broker.close();
+});
+
+function spec(extra: Partial<BoardSpec> = {}): BoardSpec {
+  return { serial: `SIMT-${String(++serialNo).padStart(4, '0')}`, secret: 'board-secret', relayCount: 4, hasFlowSensor: true, relayFlowsLpm: { 1: 12, 2: 8, 3: 20 }, ...extra };
+}
+
+async function boot(s: BoardSpec, opts: Partial<SimBoardOptions> = {}) {
+  const b = new SimBoard(s, { brokerUrl: broker.url, sampleIntervalMs: 60_000, reconnectPeriodMs: 100, ...opts });
+  running.push(b);
+  await b.start();
+  await waitFor(() => server.of(s.serial, 'state').length > 0, 'the first state');
+  return b;
+}
+
+const seqOf = (m: { json: { seq?: number } }) => m.json.seq as number;
+
+describe('simulated relay board over a real broker', () => {
+  it('comes online with a retained status and state, and every message fits the protocol', async () => {
+    const s = spec({ firmware: 'sim-2.1.0' });
+    await boot(s);
+    const status = await waitFor(() => server.of(s.serial, 'status')[0], 'status');
+    expect(status.json).toMatchObject({ v: 1, online: true, firmware: 'sim-2.1.0', relayCount: 4 });
+    const state = server.of(s.serial, 'state')[0];
+    expect(state.json.relays).toHaveLength(4);
+    expect(state.json.relays.every((r: { open: boolean }) => !r.open)).toBe(true);
+    expect(server.of(s.serial).every((m) => m.valid)).toBe(true);
+  });
+
+  it('opens a relay on command and publishes event, then state, then ack', async () => {
+    const s = spec();
+    const b = await boot(s);
+    const before = server.of(s.serial).length;
+    const id = await server.command(s.serial, { op: 'open', relay: 2, maxOnSeconds: 90 });
+    await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === id), 'the ack');
+    const after = server.of(s.serial).slice(before);
+    expect(after.map((m) => m.kind)).toEqual(['event', 'state', 'ack']);
+    expect(after.every((m) => m.valid)).toBe(true);
+    const [event, state, ack] = after.map((m) => m.json);
+    expect(event).toMatchObject({ kind: 'relay', relay: 2, open: true, source: 'command', cmdId: id });
+    expect(state.relays[1]).toMatchObject({ open: true, cmdId: id });
+    expect(Date.parse(state.relays[1].closesAt) - Date.parse(state.relays[1].since)).toBe(90_000);
+    expect(ack).toMatchObject({ id, ok: true });
+    expect(event.seq < state.seq && state.seq < ack.seq).toBe(true);
+    expect(b.relayStates()[1].open).toBe(true);
+    expect(b.energizeLog.map((e) => e.relay)).toEqual([2]);
+  });
+
+  it('closes the relay by itself when maxOnSeconds has passed, reporting source failsafe', async () => {
+    const clock = new ManualClock();
+    const s = spec();
+    const b = await boot(s, { clock });
+    const id = await server.command(s.serial, { op: 'open', relay: 3, maxOnSeconds: 2 });
+    await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === id), 'the ack');
+    clock.advance(1999);
+    expect(b.relayStates()[2].open).toBe(true);
+    clock.advance(1);
+    expect(b.relayStates()[2].open).toBe(false);
+    const ev = await waitFor(() => server.of(s.serial, 'event').find((m) => m.json.source === 'failsafe'), 'the failsafe event');
+    expect(ev.json).toMatchObject({ relay: 3, open: false, cmdId: id, at: new Date(clock.now()).toISOString() });
+    const state = await waitFor(() => server.of(s.serial, 'state').find((m) => m.json.seq > ev.json.seq), 'the state after');
+    expect(state.json.relays[2]).toEqual({ open: false, since: null, closesAt: null, cmdId: null });
+  });
+
+  it('re-arms the failsafe when an open relay is opened again and acks ok', async () => {
+    const clock = new ManualClock();
+    const s = spec();
+    const b = await boot(s, { clock });
+    await server.command(s.serial, { op: 'open', relay: 1, maxOnSeconds: 10 });
+    await waitFor(() => server.of(s.serial, 'ack').length === 1, 'the first ack');
+    clock.advance(8000);
+    const again = await server.command(s.serial, { op: 'open', relay: 1, maxOnSeconds: 10 });
+    const ack = await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === again), 'the second ack');
+    expect(ack.json.ok).toBe(true);
+    expect(server.of(s.serial, 'event')).toHaveLength(1);
+    clock.advance(9000);
+    expect(b.relayStates()[0].open).toBe(true);
+    clock.advance(1000);
+    expect(b.relayStates()[0].open).toBe(false);
+  });
+
+  it('closes every open relay on close_all, one event each before one state and the ack', async () => {
+    const s = spec();
+    const b = await boot(s);
+    for (const relay of [1, 3]) await server.command(s.serial, { op: 'open', relay, maxOnSeconds: 60 });
+    await waitFor(() => server.of(s.serial, 'ack').length === 2, 'two acks');
+    const before = server.of(s.serial).length;
+    const id = await server.command(s.serial, { op: 'close_all' });
+    await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === id), 'the close_all ack');
+    const after = server.of(s.serial).slice(before);
+    expect(after.map((m) => m.kind)).toEqual(['event', 'event', 'state', 'ack']);
+    expect(after.slice(0, 2).map((m) => [m.json.relay, m.json.open, m.json.cmdId])).toEqual([[1, false, id], [3, false, id]]);
+    expect(b.relayStates().every((r) => !r.open)).toBe(true);
+  });
+
+  it('answers a bad command that has an id with ack ok:false, and ignores one without an id', async () => {
+    const s = spec();
+    await boot(s);
+    await server.raw(s.serial, JSON.stringify({ v: 1, op: 'open', relay: 1, maxOnSeconds: 10, at: new Date().toISOString() }));
+    await server.raw(s.serial, 'not json at all');
+    const bad = await server.command(s.serial, { op: 'open', relay: 1, maxOnSeconds: 0 });
+    const tooHigh = await server.command(s.serial, { op: 'open', relay: 6, maxOnSeconds: 10 });
+    const a1 = await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === bad), 'ack of the bad command');
+    const a2 = await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === tooHigh), 'ack of relay 6');
+    expect(a1.json.ok).toBe(false);
+    expect(a1.json.error).toMatch(/maxOnSeconds/);
+    expect(a2.json).toMatchObject({ ok: false, error: expect.stringMatching(/relay 6 does not exist/) });
+    expect(a2.valid && a1.valid).toBe(true);
+    expect(server.of(s.serial, 'ack')).toHaveLength(2);
+    expect(server.of(s.serial, 'event')).toHaveLength(0);
+  });
+
+  it('ignores commands entirely under no_ack', async () => {
+    const s = spec();
+    const b = await boot(s);
+    b.setFault({ fault: 'no_ack', on: true });
+    await server.command(s.serial, { op: 'open', relay: 1, maxOnSeconds: 10 });
+    await sleep(300);
+    expect(server.of(s.serial, 'ack')).toHaveLength(0);
+    expect(b.relayStates()[0].open).toBe(false);
+    b.setFault({ fault: 'no_ack', on: false });
+    const id = await server.command(s.serial, { op: 'open', relay: 1, maxOnSeconds: 10 });
+    await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === id), 'the ack once the fault clears');
+  });
+
+  it('keeps a stuck valve open on close, acks ok:false, and closes it when the fault clears', async () => {
+    const s = spec();
+    const b = await boot(s);
+    b.setFault({ fault: 'stuck_valve', on: true, relay: 2 });
+    await server.command(s.serial, { op: 'open', relay: 2, maxOnSeconds: 60 });
+    const close = await server.command(s.serial, { op: 'close', relay: 2 });
+    const ack = await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === close), 'the close ack');
+    expect(ack.json).toMatchObject({ ok: false, error: expect.stringMatching(/stuck/) });
+    expect(b.relayStates()[1].open).toBe(true);
+    expect(server.of(s.serial, 'event').filter((m) => !m.json.open)).toHaveLength(0);
+    b.setFault({ fault: 'stuck_valve', on: false, relay: 2 });
+    const ev = await waitFor(() => server.of(s.serial, 'event').find((m) => !m.json.open), 'the late close');
+    expect(ev.json).toMatchObject({ relay: 2, source: 'command', cmdId: close });
+    expect(b.relayStates()[1].open).toBe(false);
+  });
+
+  it('reports a local button press as a button event with a ten-minute failsafe', async () => {
+    const s = spec();
+    const b = await boot(s);
+    b.pressButton(4, true);
+    const ev = await waitFor(() => server.of(s.serial, 'event')[0], 'the button event');
+    expect(ev.json).toMatchObject({ relay: 4, open: true, source: 'button', cmdId: null });
+    const r = b.relayStates()[3];
+    expect(Date.parse(r.closesAt!) - Date.parse(r.since!)).toBe(600_000);
+    expect(() => b.pressButton(5, true)).toThrow(/does not exist/);
+  });
+
+  it('reports the sum of the open zones as flow, held back by a closed master valve', async () => {
+    const clock = new ManualClock();
+    const s = spec({ relayCount: 8, masterValveRelay: 8, relayFlowsLpm: { 1: 12, 2: 8 } });
+    const b = await boot(s, { clock, sampleIntervalMs: 1000, samplesPerMessage: 1 });
+    b.pressButton(1, true);
+    b.pressButton(2, true);
+    clock.advance(1000);
+    expect(b.latestSample()!.flowLpm).toBeLessThan(0.1);
+    b.pressButton(8, true);
+    clock.advance(1000);
+    const open = b.latestSample()!.flowLpm!;
+    expect(open).toBeGreaterThan(20 * 0.97);
+    expect(open).toBeLessThan(20 * 1.03);
+    b.setFault({ fault: 'broken_head', on: true, relay: 2 });
+    clock.advance(1000);
+    expect(b.latestSample()!.flowLpm!).toBeGreaterThan((12 + 8 * 2.5) * 0.97);
+    b.setFault({ fault: 'clock_skew', on: true, offsetMinutes: 180 });
+    clock.advance(1000);
+    const sampledAt = Date.parse(b.latestSample()!.at) - 180 * 60_000;
+    expect(sampledAt).toBeGreaterThan(clock.now() - 1000);
+    expect(sampledAt).toBeLessThanOrEqual(clock.now());
+    const tele = await waitFor(() => server.of(s.serial, 'telemetry').length >= 4 && server.of(s.serial, 'telemetry'), 'four telemetry messages');
+    expect(tele.every((m) => m.valid)).toBe(true);
+  });
+
+  it('reports a change of the rain input at once', async () => {
+    const clock = new ManualClock();
+    const s = spec();
+    const b = await boot(s, { clock, sampleIntervalMs: 1000, samplesPerMessage: 5 });
+    b.setRain(true);
+    const t = await waitFor(() => server.of(s.serial, 'telemetry')[0], 'telemetry after the rain trip');
+    expect(t.json.samples.at(-1).rain).toBe(true);
+  });
+
+  it('fires the last-will when dropped off the network, buffers, and replays in seq order with no gap', async () => {
+    const s = spec();
+    const b = await boot(s, { sampleIntervalMs: 20, samplesPerMessage: 2 });
+    await waitFor(() => server.of(s.serial, 'telemetry').length >= 3, 'some telemetry');
+    b.setFault({ fault: 'offline', on: true });
+    const will = await waitFor(() => server.of(s.serial, 'status').find((m) => m.json.online === false), 'the last-will');
+    expect(will.json).toEqual({ v: 1, online: false });
+    expect(b.online).toBe(false);
+    b.pressButton(1, true);
+    await sleep(400);
+    b.pressButton(1, false);
+    const offline = b.stats;
+    expect(offline.samplesBuffered).toBeGreaterThan(10);
+    const telemetryWhileOff = server.of(s.serial, 'telemetry').length;
+    await sleep(150);
+    expect(server.of(s.serial, 'telemetry').length).toBe(telemetryWhileOff);
+
+    b.setFault({ fault: 'offline', on: false });
+    await waitFor(() => b.online && b.stats.samplesBuffered === 0, 'the reconnect');
+    await sleep(200);
+    await b.stop();
+    running.splice(running.indexOf(b), 1);
+    await sleep(100);
+
+    const stats = b.stats;
+    expect(stats.reconnects).toBe(1);
+    expect(stats.dropped).toBe(0);
+    const msgs = server.of(s.serial).filter((m) => m.kind !== 'status');
+    expect(msgs.every((m) => m.valid)).toBe(true);
+    // Redeliveries (same seq) are allowed and identical; first sightings run strictly upward with no gap.
+    const bySeq = new Map<number, string>();
+    const order: number[] = [];
+    for (const m of msgs) {
+      const prev = bySeq.get(seqOf(m));
+      if (prev !== undefined) expect(JSON.stringify(m.json)).toBe(prev);
+      else {
+        bySeq.set(seqOf(m), JSON.stringify(m.json));
+        order.push(seqOf(m));
+      }
+    }
+    for (let i = 1; i < order.length; i++) expect(order[i]).toBe(order[i - 1] + 1);
+    const events = msgs.filter((m) => m.kind === 'event').map((m) => m.json);
+    expect(events.map((e) => [e.open, e.source])).toEqual([[true, 'button'], [false, 'button']]);
+    // Every sample the board counts as sent arrived exactly once, in time order.
+    const samples = [...new Map(msgs.filter((m) => m.kind === 'telemetry').map((m) => [seqOf(m), m.json.samples])).values()].flat();
+    expect(samples.length).toBe(stats.samplesSent);
+    expect(stats.samplesSent).toBeGreaterThan(offline.samplesBuffered);
+    for (let i = 1; i < samples.length; i++) expect(Date.parse(samples[i].at)).toBeGreaterThan(Date.parse(samples[i - 1].at));
+    // The state refreshed after the reconnect, and a clean stop leaves "offline" retained.
+    expect(server.of(s.serial, 'status').at(-1)!.json.online).toBe(false);
+    expect(server.of(s.serial, 'status').filter((m) => m.json.online).length).toBe(2);
+  });
+
+  it('stops promptly even while dropped off the network', async () => {
+    const s = spec();
+    const b = await boot(s);
+    b.setFault({ fault: 'offline', on: true });
+    await waitFor(() => !b.online, 'the drop');
+    const t0 = Date.now();
+    await b.stop();
+    expect(Date.now() - t0).toBeLessThan(1500);
+    await sleep(300);
+    expect(server.of(s.serial, 'status').filter((m) => m.json.online)).toHaveLength(1);
+  });
+
+  it('produces the same samples for the same seed, and different ones for another seed', async () => {
+    const s = spec();
+    async function samplesWith(seed: number) {
+      const clock = new ManualClock();
+      const b = new SimBoard(s, { brokerUrl: broker.url, seed, clock, sampleIntervalMs: 1000, samplesPerMessage: 5, seqStart: 1, reconnectPeriodMs: 100 });
+      const from = server.seen.length;
+      await b.start();
+      b.pressButton(1, true);
+      clock.advance(12_000);
+      const tele = await waitFor(() => {
+        const t = server.seen.slice(from).filter((m) => m.serial === s.serial && m.kind === 'telemetry');
+        return t.length >= 2 && t;
+      }, 'two telemetry messages');
+      await b.stop();
+      return tele.slice(0, 2).map((m) => m.json);
+    }
+    const a = await samplesWith(7);
+    const again = await samplesWith(7);
+    const other = await samplesWith(8);
+    expect(a[0].samples).toHaveLength(5);
+    expect(again).toEqual(a);
+    expect(other.map((t) => t.samples.map((x: { moistureRaw: number }) => x.moistureRaw))).not.toEqual(a.map((t) => t.samples.map((x: { moistureRaw: number }) => x.moistureRaw)));
+  });
+});
+
+describe('simulated relay board when the broker goes away', () => {
+  it('keeps sampling while the broker is gone and replays everything once a broker is back', async () => {
+    const first = await startBroker();
+    const s = spec();
+    const b = new SimBoard(s, { brokerUrl: first.url, sampleIntervalMs: 20, samplesPerMessage: 2, reconnectPeriodMs: 400 });
+    await b.start();
+    await sleep(100);
+    await first.close();
+    await waitFor(() => !b.online, 'the board to notice');
+    await sleep(300);
+    expect(b.stats.samplesBuffered).toBeGreaterThan(5);
+    const second = await startBroker(first.port);
+    const listener = await startServerClient(second.url);
+    try {
+      await waitFor(() => b.online && b.stats.samplesBuffered === 0 && listener.of(s.serial, 'state').length > 0, 'the replay');
+      const tele = listener.of(s.serial, 'telemetry');
+      // The buffered samples are older than the reconnect and come first, in seq order.
+      const seqs = tele.map((m) => m.json.seq as number);
+      expect(seqs.length).toBeGreaterThan(3);
+      for (let i = 1; i < seqs.length; i++) expect(seqs[i]).toBeGreaterThan(seqs[i - 1]);
+      const state = listener.of(s.serial, 'state')[0];
+      expect(state.json.seq).toBeGreaterThan(seqs[0]);
+      expect(b.stats.reconnects).toBe(1);
+    } finally {
+      await b.stop();
+      await listener.close();
+      await second.close();
+    }
+  });
+});
