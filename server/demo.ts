@@ -40,5 +40,6 @@ export async function startDemoFleet(rt: Runtime): Promise<void> {
     samplesPerMessage: 5,
   });
   rt.extras.push({ name: 'simulator', close: () => sim.close() });
+  rt.services.demo.simulatorUrl = sim.controlUrl;
   rt.log.info({ control: sim.controlUrl, boards: boards.length }, 'simulated demo fleet running');
 }

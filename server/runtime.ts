@@ -66,7 +66,7 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
     failsafeMarginS: config.FAILSAFE_MARGIN_SECONDS,
   });
   sink.setListener(dispatcher);
-  const services: Services = { fleet, bus, gateway, dispatcher };
+  const services: Services = { fleet, bus, gateway, dispatcher, demo: {} };
 
   const { app, sessionMiddleware } = createApp({
     config, db, pool, log, clock, services,

@@ -40,6 +40,8 @@ export const siteFields = {
   staticPressureKPa: z.number().positive().max(2_000),
   supplyMarginPct: z.number().min(0).max(90),
   restrictions: restrictionsSchema,
+  allowParallel: z.boolean(),
+  rainDelayHours: z.number().min(0, 'Hours cannot be negative').max(240),
   notes: z.string().max(4000),
 };
 
@@ -49,6 +51,8 @@ export const createSiteSchema = z.strictObject({
   elevationM: siteFields.elevationM.default(0),
   supplyMarginPct: siteFields.supplyMarginPct.default(20),
   restrictions: siteFields.restrictions.default({ dayRule: 'any', weekdays: [], noWateringWindows: [] }),
+  allowParallel: siteFields.allowParallel.default(false),
+  rainDelayHours: siteFields.rainDelayHours.default(24),
   notes: siteFields.notes.default(''),
 });
 export type CreateSite = z.infer<typeof createSiteSchema>;

@@ -194,3 +194,9 @@ export const serviceDailyResponseSchema = z.object({
 });
 export type ServiceDay = z.infer<typeof serviceDaySchema>;
 export type ServiceDailyResponse = z.infer<typeof serviceDailyResponseSchema>;
+
+/** Watering need over the last `days` days ending `to` (default: today at the site). */
+export const wateringNeedQuery = z.object({
+  days: z.coerce.number().int().min(1, 'At least 1 day').max(60, 'At most 60 days').default(7),
+  to: isoDate.optional(),
+});

@@ -16,12 +16,14 @@ export const zoneFields = {
   areaM2: z.number().positive('Area must be above 0').max(1_000_000),
   rootDepthM: z.number().min(0.05, 'Root depth at least 0.05 m').max(3),
   efficiency: z.number().min(0.3, 'Efficiency between 0.3 and 1').max(1, 'Efficiency between 0.3 and 1'),
+  moistureThresholdPct: z.number().min(1).max(100).nullable(),
   notes: z.string().max(4000),
 };
 
 export const createZoneSchema = z.strictObject({
   ...zoneFields,
   efficiency: zoneFields.efficiency.default(0.75),
+  moistureThresholdPct: zoneFields.moistureThresholdPct.default(null),
   notes: zoneFields.notes.default(''),
 });
 export type CreateZone = z.infer<typeof createZoneSchema>;

@@ -2,6 +2,7 @@ import { sql } from 'drizzle-orm';
 import type { Db } from './client';
 import { controllers, siteMembers, sites, users, zones, type NewZone, type WateringRestrictions } from './schema/index';
 import { hashPassword } from '../services/auth';
+import { seedDemoWeather } from './seed-weather';
 
 /**
  * The demo scenario. Everything here is invented: Fernhollow Grounds Care looks after four
@@ -229,6 +230,7 @@ export async function seedDemo(db: Db, opts: { production?: boolean } = {}): Pro
       userIds[u.email] = row.id;
       if (u.sites.length) await tx.insert(siteMembers).values(u.sites.map((k) => ({ siteId: siteIds[k], userId: row.id })));
     }
+    await seedDemoWeather(tx, Object.values(siteIds), new Date());
     return { siteIds, userIds, controllerIds };
   });
 }

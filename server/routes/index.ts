@@ -3,9 +3,13 @@ import type { AppDeps } from '../app';
 import { authRoutes } from './auth';
 import { controllerRoutes } from './controllers';
 import { healthRoutes } from './health';
+import { planningRoutes } from './planning';
 import { siteRoutes } from './sites';
+import { supplyRoutes } from './supply';
+import { weatherRoutes } from './weather';
 import { zoneRoutes } from './zones';
 import { siteControlRoutes, zoneControlRoutes } from './control';
+import { demoRoutes } from './demo';
 
 /**
  * Every API router and where it is mounted under /api. A new resource is one line here.
@@ -17,6 +21,10 @@ export const apiRouters: { path: string; build: (deps: AppDeps) => Router }[] = 
   { path: '/sites', build: siteRoutes },
   { path: '/controllers', build: controllerRoutes },
   { path: '/zones', build: zoneRoutes },
+  { path: '/', build: weatherRoutes },
+  { path: '/sites', build: supplyRoutes },
+  { path: '/', build: planningRoutes },
   { path: '/zones', build: zoneControlRoutes },
   { path: '/sites', build: siteControlRoutes },
+  { path: '/demo', build: demoRoutes },
 ];

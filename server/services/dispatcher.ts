@@ -402,8 +402,48 @@ export class ValveDispatcher implements ValveListener {
     };
   }
 
-  rainChanged(_board: BoardLive, _tripped: boolean, _atMs: number) {
-    /* the scheduler's rain hold listens to this (see server/scheduler) */
+  /** Take charge again of a zone a board still has open after a restart: close it at its planned end. */
+  adoptRun(siteId: number, zoneId: number, flowLpm: number, plannedEndMs: number, onOutcome: (o: ZoneOutcome) => void): boolean {
+    const loc = this.d.fleet.relayOfZone(zoneId);
+    if (!loc) return false;
+    const s = this.site(siteId);
+    let a = s.active.get(zoneId);
+    if (!a) {
+      a = this.adopted(loc.board, loc.relay, zoneId, 'program', plannedEndMs);
+      s.active.set(zoneId, a);
+    }
+    a.origin = 'program';
+    a.flowLpm = flowLpm;
+    a.plannedEnd = plannedEndMs;
+    a.onOutcome = onOutcome;
+    if (a.closeTimer) this.d.clock.clearTimeout(a.closeTimer);
+    a.closeTimer = this.d.clock.setTimeout(() => void this.close(zoneId, siteId, 'completed'), Math.max(0, plannedEndMs - this.d.clock.now()));
+    return true;
+  }
+
+  /** Listeners for rain changes (the scheduler's rain hold). */
+  private rainListeners: ((board: BoardLive, tripped: boolean, atMs: number) => void)[] = [];
+  onRain(fn: (board: BoardLive, tripped: boolean, atMs: number) => void) {
+    this.rainListeners.push(fn);
+  }
+
+  rainChanged(board: BoardLive, tripped: boolean, atMs: number) {
+    for (const fn of this.rainListeners) fn(board, tripped, atMs);
+  }
+
+  /** Close every open valve of a site one after another, each controller's stagger apart (rain). */
+  async closeSiteStaggered(siteId: number, why: 'rain' | 'stopped', actor?: Actor | null) {
+    const s = this.site(siteId);
+    for (const q of [...s.queue]) await this.close(q.zoneId, siteId, why, actor);
+    const zonesOpen = new Set<number>([...s.active.keys()]);
+    for (const b of this.d.fleet.ofSite(siteId)) b.relays.forEach((r, i) => { const z = b.zoneByRelay.get(i + 1); if (r.open && z) zonesOpen.add(z); });
+    let first = true;
+    for (const z of zonesOpen) {
+      const loc = this.d.fleet.relayOfZone(z);
+      if (!first && loc) await new Promise<void>((r) => this.d.clock.setTimeout(r, Math.min(loc.board.staggerMs, 500)));
+      first = false;
+      void this.close(z, siteId, why, actor);
+    }
   }
 
   onlineChanged(board: BoardLive, online: boolean) {

@@ -9,4 +9,6 @@ export type Services = {
   bus: LiveBus;
   gateway: Gateway;
   dispatcher: ValveDispatcher;
+  /** Demo mode: where the simulated fleet's control API listens (set once it runs). */
+  demo: { simulatorUrl?: string };
 };

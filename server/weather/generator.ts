@@ -83,7 +83,7 @@ export function generateDay(latitudeDeg: number, longitudeDeg: number, date: str
   // Season: warmest around 19 July in the north, 19 January in the south.
   const peak = latitudeDeg >= 0 ? 200 : 17;
   const season = Math.cos((2 * Math.PI * (doy - peak)) / 365.25); // 1 midsummer … −1 midwinter
-  const annualMean = 28 - 0.42 * Math.max(0, absLat - 12);
+  const annualMean = 27 - 0.55 * Math.max(0, absLat - 12);
   const amplitude = Math.min(15, 1 + 0.28 * absLat);
 
   // Wet and dry periods last days to a couple of weeks; rain is likelier in the cool season.
@@ -101,7 +101,7 @@ export function generateDay(latitudeDeg: number, longitudeDeg: number, date: str
 
   const warmSpell = 3.5 * smooth(place, 'temp', n / 5) + 1.2 * (r('temp-day') * 2 - 1) + (regime === 'dry' ? 2 : 0);
   const mean = annualMean + amplitude * season + warmSpell - (rainy ? 2 : 0);
-  const range = rainy ? 5 + 3 * r('range') : 10 + 5 * r('range') + (absLat < 30 ? 0 : 2 * Math.max(0, season));
+  const range = rainy ? 5 + 3 * r('range') : 9 + 4 * r('range') + (absLat < 30 ? 0 : 1.5 * Math.max(0, season));
   const tmaxC = round1(clamp(mean + range / 2, -55, 52));
   const tminC = round1(Math.min(tmaxC, clamp(mean - range / 2, -80, 40)));
 

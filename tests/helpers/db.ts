@@ -9,7 +9,7 @@ export type TestDb = DbHandle & { url: string; name: string; drop: () => Promise
 /** A fresh, migrated database of this test file's own. Call drop() in afterAll. */
 export async function createTestDb(): Promise<TestDb> {
   const base = adminUrl();
-  const name = `runnel_t_${randomBytes(5).toString('hex')}`;
+  const name = `runnel_t_${randomBytes(4).toString('hex')}_${Date.now().toString(36)}`;
   const admin = new pg.Client({ connectionString: `${base}/postgres` });
   await admin.connect();
   await admin.query(`create database "${name}" template "${inject('templateDb')}"`);

@@ -20,12 +20,13 @@ export default async function setup({ provide }: { provide: (key: 'templateDb', 
   const name = `${TEMPLATE_PREFIX}${process.pid}_${Date.now().toString(36)}`;
   const admin = new pg.Client({ connectionString: `${base}/postgres` });
   await admin.connect();
-  // Drop what earlier, interrupted runs left behind: databases nobody is connected to.
-  const old = await admin.query(
-    `select datname from pg_database d where (datname like 'runnel_t_%' or datname like '${TEMPLATE_PREFIX}%')
-       and not exists (select 1 from pg_stat_activity a where a.datname = d.datname)`,
-  );
-  for (const r of old.rows) await admin.query(`drop database if exists "${r.datname}"`).catch(() => {});
+  // Drop what interrupted runs left behind: names end in their creation time (base 36 ms);
+  // only those older than three hours go, so a run in parallel keeps its own.
+  const old = await admin.query(`select datname from pg_database where datname like 'runnel_t_%' or datname like '${TEMPLATE_PREFIX}%'`);
+  for (const r of old.rows as { datname: string }[]) {
+    const born = parseInt(r.datname.split('_').pop() ?? '', 36);
+    if (!Number.isFinite(born) || Date.now() - born > 3 * 3_600_000) await admin.query(`drop database if exists "${r.datname}" with (force)`).catch(() => {});
+  }
   await admin.query(`create database "${name}"`);
   await admin.end();
   const dbh = createDb(`${base}/${name}`, { max: 1 });

@@ -1,7 +1,8 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import request from 'supertest';
 import type { Express } from 'express';
-import { controllers, sites, zones } from '../../server/db/schema/index';
+import { controllers, sites, weatherDays, zones } from '../../server/db/schema/index';
+import { startFakeWeatherService, type FakeWeatherService } from '../../server/weather/fake-service';
 import { createTestDb, type TestDb } from '../helpers/db';
 import { buildTestApp, signedIn } from '../helpers/api';
 import { seedFixture, type Fixture } from '../helpers/fixtures';
@@ -9,10 +10,12 @@ import { seedFixture, type Fixture } from '../helpers/fixtures';
 type Who = 'admin' | 'manager' | 'technician' | 'owner' | 'stranger';
 type Case = {
   route: string;
-  method: 'get' | 'post' | 'patch' | 'delete';
+  method: 'get' | 'post' | 'put' | 'patch' | 'delete';
   /** Builds the path (and creates what the call consumes, for deletes) before each call. */
   path: (f: Fixture, db: TestDb) => string | Promise<string>;
   body?: (f: Fixture) => object;
+  /** A file sent as multipart/form-data (field, bytes, file name). */
+  attach?: () => [string, Buffer, string];
   expect: Record<Who, number>;
 };
 
@@ -56,6 +59,20 @@ const newZone = (controllerId: number, relay: number) => ({
   headCount: 20, flowPerHeadLpm: 0.1, areaM2: 12, rootDepthM: 0.4,
 });
 let relayNo = 1;
+let weather: FakeWeatherService;
+
+async function spareWeatherDay(db: TestDb, siteId: number) {
+  await db.db
+    .insert(weatherDays)
+    .values({ siteId, date: '2025-01-15', tmaxC: 8, tminC: 1, rainMm: 0, et0Mm: 0.9, et0Method: 'tmin/temperature_range/wind_assumed', source: 'manual' })
+    .onConflictDoNothing();
+  return `/api/sites/${siteId}/weather/2025-01-15`;
+}
+const weatherCsv = (): [string, Buffer, string] => ['file', Buffer.from('date,tmax_c,tmin_c,rain_mm\n2025-02-01,9,2,0\n'), 'weather.csv'];
+const bucketTest = () => ({ kind: 'bucket', volumeL: 5, seconds: 10 });
+const groupHeadsBody = () => ({ supplyLpm: 60, marginPct: 20, heads: [{ id: 'h1', flowLpm: 5, headType: 'spray' }] });
+const writers = { admin: 200, manager: 200, technician: 200, owner: 403, stranger: 401 };
+const otherSite = { admin: 200, manager: 200, technician: 404, owner: 404, stranger: 401 };
 
 const all = (n: number, stranger = 401): Record<Who, number> => ({ admin: n, manager: n, technician: n, owner: n, stranger });
 
@@ -88,9 +105,31 @@ export const cases: Case[] = [
   { route: 'PATCH /api/zones/:id (other site)', method: 'patch', path: (f) => `/api/zones/${f.zoneB}`, body: () => ({ headCount: 7 }), expect: { admin: 200, manager: 200, technician: 404, owner: 404, stranger: 401 } },
   { route: 'DELETE /api/zones/:id', method: 'delete', path: (f, db) => spareController(db, f.siteA).then((c) => spareZone(db, c)).then((id) => `/api/zones/${id}`), expect: { admin: 204, manager: 204, technician: 403, owner: 403, stranger: 401 } },
   { route: 'POST /api/auth/sign-out', method: 'post', path: () => '/api/auth/sign-out', expect: all(204, 204) },
+  { route: 'GET /api/weather/template.csv', method: 'get', path: () => '/api/weather/template.csv', expect: all(200) },
+  { route: 'GET /api/sites/:id/weather (member site)', method: 'get', path: (f) => `/api/sites/${f.siteA}/weather`, expect: all(200) },
+  { route: 'GET /api/sites/:id/weather (other site)', method: 'get', path: (f) => `/api/sites/${f.siteB}/weather`, expect: otherSite },
+  { route: 'PUT /api/sites/:id/weather/:date (member site)', method: 'put', path: (f) => `/api/sites/${f.siteA}/weather/2025-01-10`, body: () => ({ tmaxC: 9, tminC: 2 }), expect: writers },
+  { route: 'PUT /api/sites/:id/weather/:date (other site)', method: 'put', path: (f) => `/api/sites/${f.siteB}/weather/2025-01-10`, body: () => ({ tmaxC: 9, tminC: 2 }), expect: otherSite },
+  { route: 'DELETE /api/sites/:id/weather/:date (member site)', method: 'delete', path: (f, db) => spareWeatherDay(db, f.siteA), expect: { admin: 204, manager: 204, technician: 204, owner: 403, stranger: 401 } },
+  { route: 'DELETE /api/sites/:id/weather/:date (other site)', method: 'delete', path: (f, db) => spareWeatherDay(db, f.siteB), expect: { admin: 204, manager: 204, technician: 404, owner: 404, stranger: 401 } },
+  { route: 'POST /api/sites/:id/weather/import (member site)', method: 'post', path: (f) => `/api/sites/${f.siteA}/weather/import?dryRun=1`, attach: weatherCsv, expect: writers },
+  { route: 'POST /api/sites/:id/weather/import (other site)', method: 'post', path: (f) => `/api/sites/${f.siteB}/weather/import?dryRun=1`, attach: weatherCsv, expect: otherSite },
+  { route: 'POST /api/sites/:id/weather/fetch (member site)', method: 'post', path: (f) => `/api/sites/${f.siteA}/weather/fetch`, body: () => ({ from: '2025-02-01', to: '2025-02-03' }), expect: { admin: 200, manager: 200, technician: 403, owner: 403, stranger: 401 } },
+  { route: 'POST /api/sites/:id/weather/fetch (other site)', method: 'post', path: (f) => `/api/sites/${f.siteB}/weather/fetch`, body: () => ({ from: '2025-02-01', to: '2025-02-03' }), expect: otherSite },
+  { route: 'GET /api/sites/:id/supply-tests (member site)', method: 'get', path: (f) => `/api/sites/${f.siteA}/supply-tests`, expect: all(200) },
+  { route: 'GET /api/sites/:id/supply-tests (other site)', method: 'get', path: (f) => `/api/sites/${f.siteB}/supply-tests`, expect: otherSite },
+  { route: 'POST /api/sites/:id/supply-tests (member site)', method: 'post', path: (f) => `/api/sites/${f.siteA}/supply-tests`, body: bucketTest, expect: { admin: 201, manager: 201, technician: 201, owner: 403, stranger: 401 } },
+  { route: 'POST /api/sites/:id/supply-tests (other site)', method: 'post', path: (f) => `/api/sites/${f.siteB}/supply-tests`, body: bucketTest, expect: { admin: 201, manager: 201, technician: 404, owner: 404, stranger: 401 } },
+  { route: 'GET /api/sites/:id/planning (member site)', method: 'get', path: (f) => `/api/sites/${f.siteA}/planning?pipeMm=25&pipeLengthM=30`, expect: all(200) },
+  { route: 'GET /api/sites/:id/planning (other site)', method: 'get', path: (f) => `/api/sites/${f.siteB}/planning`, expect: otherSite },
+  { route: 'GET /api/sites/:id/watering-need (member site)', method: 'get', path: (f) => `/api/sites/${f.siteA}/watering-need?days=7`, expect: all(200) },
+  { route: 'GET /api/sites/:id/watering-need (other site)', method: 'get', path: (f) => `/api/sites/${f.siteB}/watering-need`, expect: otherSite },
+  { route: 'POST /api/planning/group-heads', method: 'post', path: () => '/api/planning/group-heads', body: groupHeadsBody, expect: all(200) },
 ];
 
 beforeAll(async () => {
+  weather = await startFakeWeatherService({ port: 0 });
+  process.env.WEATHER_URL = weather.url;
   tdb = await createTestDb();
   f = await seedFixture(tdb.db);
   app = buildTestApp(tdb).app;
@@ -99,6 +138,7 @@ beforeAll(async () => {
 });
 afterAll(async () => {
   await tdb.drop();
+  await weather.close();
 });
 
 describe('every route, tried as each role and as a stranger', () => {
@@ -109,6 +149,7 @@ describe('every route, tried as each role and as a stranger', () => {
         const path = await c.path(f, tdb);
         let req = agents[who]![c.method](path);
         if (c.body) req = req.send(c.body(f));
+        if (c.attach) req = req.attach(...c.attach());
         const res = await req;
         got[who] = res.status;
         if (c.route === 'POST /api/auth/sign-out' && who !== 'stranger') {

@@ -18,7 +18,7 @@ afterAll(async () => {
 
 describe('migrations and demo data', () => {
   it('apply to an empty database', async () => {
-    const name = `runnel_t_empty_${Date.now()}`;
+    const name = `runnel_t_empty_${Date.now().toString(36)}`;
     const admin = new pg.Client({ connectionString: `${adminUrl()}/postgres` });
     await admin.connect();
     await admin.query(`create database "${name}"`);

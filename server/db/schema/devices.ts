@@ -51,6 +51,8 @@ export const zones = pgTable(
     areaM2: doublePrecision('area_m2').notNull(),
     rootDepthM: doublePrecision('root_depth_m').notNull(),
     efficiency: doublePrecision('efficiency').notNull().default(0.75),
+    /** Soil moisture (%) above which this zone's scheduled runs are held; null = not used. */
+    moistureThresholdPct: doublePrecision('moisture_threshold_pct'),
     notes: text('notes').notNull().default(''),
     createdAt: timestamp('created_at', { withTimezone: true }).notNull().defaultNow(),
     updatedAt: timestamp('updated_at', { withTimezone: true }).notNull().defaultNow(),

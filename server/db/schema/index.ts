@@ -5,3 +5,4 @@ export * from './devices';
 export * from './audit';
 export * from './telemetry';
 export * from './weather';
+export * from './programs';

@@ -1,4 +1,4 @@
-import { doublePrecision, integer, jsonb, pgTable, text, timestamp, varchar } from 'drizzle-orm/pg-core';
+import { boolean, doublePrecision, integer, jsonb, pgTable, text, timestamp, varchar } from 'drizzle-orm/pg-core';
 
 /**
  * Watering restrictions set by the water authority: which days watering is allowed and the
@@ -26,6 +26,12 @@ export const sites = pgTable('sites', {
     .$type<WateringRestrictions>()
     .notNull()
     .default({ dayRule: 'any', weekdays: [], noWateringWindows: [] }),
+  /** When false (the default) zones run one at a time; when true, as many as the supply and caps allow. */
+  allowParallel: boolean('allow_parallel').notNull().default(false),
+  /** After the rain input dries, scheduled runs stay held this many hours. */
+  rainDelayHours: doublePrecision('rain_delay_hours').notNull().default(24),
+  /** When the site's rain input last went dry (the rain hold runs from here). */
+  rainClearedAt: timestamp('rain_cleared_at', { withTimezone: true }),
   notes: text('notes').notNull().default(''),
   createdAt: timestamp('created_at', { withTimezone: true }).notNull().defaultNow(),
   updatedAt: timestamp('updated_at', { withTimezone: true }).notNull().defaultNow(),

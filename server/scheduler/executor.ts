@@ -1,0 +1,282 @@
+import { and, asc, eq, inArray, sql } from 'drizzle-orm';
+import type { Logger } from 'pino';
+import type { Clock } from '../clock';
+import type { Db } from '../db/client';
+import { controllers, programZones, programs, readings, runs, sites, zoneRuns, zones, type Site, type ZoneRun } from '../db/schema/index';
+import { usableSupply } from '../domain/hydraulics';
+import type { Fleet } from '../fleet/fleet';
+import type { LiveBus } from '../live/bus';
+import type { ValveDispatcher, ZoneOutcome } from '../services/dispatcher';
+import { dayRestriction, windowConflict } from './calendar';
+import { siteHold } from './holds';
+import { zoneMinutes } from './minutes';
+import { planRun, type PlanZone } from './planner';
+
+export type ExecDeps = {
+  db: Db;
+  dispatcher: ValveDispatcher;
+  fleet: Fleet;
+  bus: LiveBus;
+  clock: Clock;
+  log: Logger;
+  /** False once this instance is no longer the one that dispatches. */
+  isLeader: () => boolean;
+};
+
+type Done = { state: ZoneRun['state']; reason?: string };
+
+/** Turns one run into zone runs and walks them through the dispatcher. */
+export class RunExecutor {
+  /** Run ids being executed here, so a reconcile never doubles one. */
+  readonly executing = new Set<number>();
+  /** Per site: resolvers that end a run's remaining zones when it rains. */
+  private rainWaiters = new Map<number, Set<() => void>>();
+
+  constructor(private d: ExecDeps) {}
+
+  private sleepUntil(t: number, siteId: number): Promise<'time' | 'rain'> {
+    const ms = t - this.d.clock.now();
+    if (ms <= 0) return Promise.resolve('time');
+    return new Promise((resolve) => {
+      const set = this.rainWaiters.get(siteId) ?? new Set();
+      this.rainWaiters.set(siteId, set);
+      const wake = () => {
+        set.delete(wake);
+        this.d.clock.clearTimeout(h);
+        resolve('rain');
+      };
+      const h = this.d.clock.setTimeout(() => {
+        set.delete(wake);
+        resolve('time');
+      }, ms);
+      set.add(wake);
+    });
+  }
+
+  /** Rain at a site: wake every waiting zone so it records the hold now. */
+  rained(siteId: number) {
+    for (const w of [...(this.rainWaiters.get(siteId) ?? [])]) w();
+  }
+
+  private async setRun(runId: number, state: (typeof runs.$inferSelect)['state'], reason?: string | null, ended = false) {
+    await this.d.db.update(runs).set({ state, reason: reason ?? null, ...(ended ? { endedAt: new Date(this.d.clock.now()) } : {}) }).where(eq(runs.id, runId));
+  }
+
+  private emit(siteId: number, runId: number, state: string, reason?: string | null) {
+    this.d.bus.publish({ type: 'run', siteId, runId, state, reason: reason ?? null });
+  }
+
+  /** Plan a fresh program run into zone runs, then execute it. */
+  async startProgramRun(runId: number): Promise<void> {
+    if (this.executing.has(runId)) return;
+    this.executing.add(runId);
+    try {
+      const [run] = await this.d.db.select().from(runs).where(eq(runs.id, runId));
+      const [program] = await this.d.db.select().from(programs).where(eq(programs.id, run.programId!));
+      const [site] = await this.d.db.select().from(sites).where(eq(sites.id, run.siteId));
+      const pzs = await this.d.db.select().from(programZones).where(eq(programZones.programId, program.id)).orderBy(asc(programZones.position));
+      const zs = pzs.length ? await this.d.db.select({ zone: zones, ctrl: controllers }).from(zones).innerJoin(controllers, eq(zones.controllerId, controllers.id)).where(inArray(zones.id, pzs.map((p) => p.zoneId))) : [];
+      const startMs = run.scheduledFor.getTime();
+      const hold = await siteHold(this.d.db, this.d.fleet, site, this.d.clock.now());
+      const dayReason = dayRestriction(site.restrictions, startMs, site.timezone);
+      const rows: (typeof zoneRuns.$inferInsert)[] = [];
+      const planZones: PlanZone[] = [];
+      const skipped = new Map<number, Done>();
+      for (const pz of pzs) {
+        const z = zs.find((x) => x.zone.id === pz.zoneId);
+        if (!z || z.ctrl.siteId !== site.id) continue;
+        const m = await zoneMinutes(this.d.db, program, pz, z.zone, site, startMs);
+        if (m.skip) skipped.set(z.zone.id, { state: 'skipped_not_needed', reason: m.skip });
+        planZones.push({ zoneId: z.zone.id, controllerId: z.ctrl.id, flowLpm: z.zone.headCount * z.zone.flowPerHeadLpm, cycles: m.skip ? [0.0001] : m.cycles.length ? m.cycles : [0.0001], soakMinutes: m.soakMinutes });
+      }
+      const caps = new Map(zs.map((z) => [z.ctrl.id, z.ctrl.maxConcurrentValves]));
+      const slots = planRun({ startMs, zones: planZones, parallel: site.allowParallel, usableSupplyLpm: usableSupply(site.supplyFlowLpm, site.supplyMarginPct), maxOpenPerController: caps });
+      for (const s of slots) {
+        const pz = pzs.find((p) => p.zoneId === s.zoneId)!;
+        const minutes = Math.round(((s.endMs - s.startMs) / 60_000) * 100) / 100;
+        let state: Done['state'] = 'planned';
+        let reason: string | null = null;
+        const sk = skipped.get(s.zoneId);
+        if (hold) [state, reason] = ['held_rain', hold.reason];
+        else if (dayReason) [state, reason] = ['skipped_restriction', dayReason];
+        else if (sk) [state, reason] = [sk.state, sk.reason ?? null];
+        else {
+          const w = windowConflict(site.restrictions, s.startMs, s.endMs, site.timezone);
+          if (w) [state, reason] = ['skipped_restriction', w];
+        }
+        rows.push({
+          runId, siteId: site.id, zoneId: s.zoneId, controllerId: s.controllerId, position: pz.position, cycle: s.cycle,
+          plannedStart: new Date(s.startMs), plannedEnd: new Date(s.endMs), plannedMinutes: sk ? 0 : minutes,
+          estimatedLitres: 0, state, reason,
+        });
+      }
+      if (rows.length) await this.d.db.insert(zoneRuns).values(rows).onConflictDoNothing();
+      if (hold) {
+        await this.setRun(runId, 'held_rain', hold.reason, true);
+        this.emit(site.id, runId, 'held_rain', hold.reason);
+        return;
+      }
+      if (dayReason || rows.every((r) => r.state === 'skipped_restriction')) {
+        const reason = dayReason ?? rows[0]?.reason ?? 'Restricted';
+        await this.setRun(runId, 'skipped_restriction', reason, true);
+        this.emit(site.id, runId, 'skipped_restriction', reason);
+        return;
+      }
+      await this.executeRun(runId, site);
+    } finally {
+      this.executing.delete(runId);
+    }
+  }
+
+  /** Execute the planned zone runs of a run (also used to resume after a restart). */
+  async executeRun(runId: number, site: Site, alsoWaitFor: Promise<void>[] = []): Promise<void> {
+    this.executing.add(runId);
+    await this.setRun(runId, 'running');
+    this.emit(site.id, runId, 'running');
+    const zrs = await this.d.db.select().from(zoneRuns).where(eq(zoneRuns.runId, runId)).orderBy(asc(zoneRuns.plannedStart), asc(zoneRuns.position));
+    const done = new Map<number, Promise<void>>();
+    const lastOfZone = new Map<number, Promise<void>>();
+    let prev: Promise<void> = Promise.resolve();
+    const tasks: Promise<void>[] = [];
+    for (const zr of zrs) {
+      if (zr.state !== 'planned') continue;
+      const after = site.allowParallel ? (lastOfZone.get(zr.zoneId) ?? Promise.resolve()) : prev;
+      const t = after.then(() => this.runZone(zr, site));
+      done.set(zr.id, t);
+      lastOfZone.set(zr.zoneId, t);
+      prev = t;
+      tasks.push(t);
+    }
+    await Promise.all([...tasks, ...alsoWaitFor]);
+    const final = await this.d.db.select({ state: zoneRuns.state, reason: zoneRuns.reason }).from(zoneRuns).where(eq(zoneRuns.runId, runId));
+    const states = new Set(final.map((f) => f.state));
+    let state: (typeof runs.$inferSelect)['state'] = 'completed';
+    let reason: string | null = null;
+    if (states.has('planned') && !this.d.isLeader()) return; // another instance carries on
+    if (states.has('held_rain')) [state, reason] = ['held_rain', final.find((f) => f.state === 'held_rain')?.reason ?? null];
+    else if ([...states].every((s) => s === 'failed')) [state, reason] = ['failed', final[0]?.reason ?? null];
+    else if ([...states].some((s) => s !== 'completed' && s !== 'skipped_not_needed')) state = 'partial';
+    await this.setRun(runId, state, reason, true);
+    this.emit(site.id, runId, state, reason);
+    this.executing.delete(runId);
+  }
+
+  private async finishZone(zr: ZoneRun, d: Done, startMs: number | null, endMs: number | null) {
+    const zone = (await this.d.db.select().from(zones).where(eq(zones.id, zr.zoneId)))[0];
+    const minutes = startMs && endMs ? Math.max(0, (endMs - startMs) / 60_000) : null;
+    const flow = zone ? zone.headCount * zone.flowPerHeadLpm : 0;
+    let measured: number | null = null;
+    const board = this.d.fleet.getById(zr.controllerId);
+    if (board?.hasFlowSensor && startMs && endMs && minutes) {
+      const r = await this.d.db
+        .select({ avg: sql<number | null>`avg(${readings.flowLpm})` })
+        .from(readings)
+        .where(and(eq(readings.controllerId, zr.controllerId), sql`${readings.at} >= ${new Date(startMs)} and ${readings.at} < ${new Date(endMs)}`));
+      // Share the controller's metered flow by nominal flow when other zones ran at the same time.
+      const overl = await this.d.db
+        .select({ zoneId: zoneRuns.zoneId })
+        .from(zoneRuns)
+        .where(and(eq(zoneRuns.controllerId, zr.controllerId), sql`${zoneRuns.id} <> ${zr.id}`, sql`${zoneRuns.actualStart} < ${new Date(endMs)}`, sql`coalesce(${zoneRuns.actualEnd}, now()) > ${new Date(startMs)}`));
+      const avg = r[0]?.avg;
+      if (avg !== null && avg !== undefined) measured = overl.length ? null : Number(avg) * minutes;
+    }
+    await this.d.db
+      .update(zoneRuns)
+      .set({
+        state: d.state, reason: d.reason ?? null,
+        actualStart: startMs ? new Date(startMs) : null, actualEnd: endMs ? new Date(endMs) : null,
+        actualMinutes: minutes !== null ? Math.round(minutes * 100) / 100 : null,
+        estimatedLitres: minutes !== null ? Math.round(flow * minutes * 10) / 10 : 0,
+        measuredLitres: measured !== null ? Math.round(measured * 10) / 10 : null,
+      })
+      .where(eq(zoneRuns.id, zr.id));
+    this.d.bus.publish({ type: 'zone_run', siteId: zr.siteId, runId: zr.runId, zoneId: zr.zoneId, zoneRunId: zr.id, state: d.state, reason: d.reason ?? null });
+  }
+
+  /** Wait for the slot, re-check holds and windows, open through the dispatcher, record the outcome. */
+  private async runZone(zr: ZoneRun, site0: Site): Promise<void> {
+    const woke = await this.sleepUntil(zr.plannedStart.getTime(), site0.id);
+    if (!this.d.isLeader()) return;
+    const [site] = await this.d.db.select().from(sites).where(eq(sites.id, site0.id));
+    const now = this.d.clock.now();
+    const hold = await siteHold(this.d.db, this.d.fleet, site, now);
+    if (hold || woke === 'rain') return this.finishZone(zr, { state: 'held_rain', reason: hold?.reason ?? 'Held by rain' }, null, null);
+    const seconds = Math.max(1, Math.round(zr.plannedMinutes * 60));
+    const w = windowConflict(site.restrictions, now, now + seconds * 1000, site.timezone);
+    if (w) return this.finishZone(zr, { state: 'skipped_restriction', reason: w }, null, null);
+    const [zone] = await this.d.db.select().from(zones).where(eq(zones.id, zr.zoneId));
+    const board = this.d.fleet.getById(zr.controllerId);
+    if (zone?.moistureThresholdPct && board?.latest && board.latest.moisturePct >= zone.moistureThresholdPct) {
+      return this.finishZone(zr, { state: 'held_rain', reason: `Held: soil moisture ${board.latest.moisturePct.toFixed(0)} % is above this zone’s ${zone.moistureThresholdPct} %` }, null, null);
+    }
+    await this.d.db.update(zoneRuns).set({ state: 'running' }).where(eq(zoneRuns.id, zr.id));
+    let opened: number | null = null;
+    const outcome = new Promise<Done & { end: number }>((resolve) => {
+      const on = (o: ZoneOutcome) => {
+        if (o.kind === 'opened') {
+          opened = o.at;
+          void this.d.db.update(zoneRuns).set({ actualStart: new Date(o.at) }).where(eq(zoneRuns.id, zr.id));
+          return;
+        }
+        if (o.kind === 'failed') return resolve({ state: 'failed', reason: o.error, end: o.at });
+        const map: Record<string, Done> = {
+          completed: { state: 'completed' },
+          failsafe: { state: 'completed', reason: 'Closed by the board’s own timer' },
+          stopped: { state: 'stopped', reason: 'Stopped by a user' },
+          button: { state: 'stopped', reason: 'Closed with the board’s button' },
+          board: { state: 'stopped', reason: 'The board reported the valve closed' },
+          rain: { state: 'held_rain', reason: 'Rest of the run held by rain' },
+        };
+        resolve({ ...map[o.why], end: o.at });
+      };
+      this.d.dispatcher
+        .start({ zoneId: zr.zoneId, seconds, origin: 'program', onOutcome: on })
+        .then((r) => this.d.db.update(zoneRuns).set({ commandId: r.commandId }).where(eq(zoneRuns.id, zr.id)))
+        .catch((e: Error) => resolve({ state: 'failed', reason: e.message, end: this.d.clock.now() }));
+    });
+    const o = await outcome;
+    await this.finishZone(zr, o, opened, opened ? o.end : null);
+  }
+
+  /** After a restart: end or resume what a run left behind, never doubling a zone. */
+  async reconcile(sinceMs: number): Promise<{ resumed: number; ended: number }> {
+    const open = await this.d.db.select().from(runs).where(and(inArray(runs.state, ['planned', 'running']), sql`${runs.scheduledFor} > ${new Date(sinceMs)}`));
+    let resumed = 0;
+    let ended = 0;
+    for (const run of open) {
+      if (this.executing.has(run.id)) continue;
+      const [site] = await this.d.db.select().from(sites).where(eq(sites.id, run.siteId));
+      const zrs = await this.d.db.select().from(zoneRuns).where(eq(zoneRuns.runId, run.id));
+      if (zrs.length === 0) {
+        void this.startProgramRun(run.id);
+        resumed++;
+        continue;
+      }
+      const adoptions: Promise<void>[] = [];
+      for (const zr of zrs.filter((z) => z.state === 'running')) {
+        const loc = this.d.fleet.relayOfZone(zr.zoneId);
+        const relay = loc ? loc.board.relays[loc.relay - 1] : null;
+        const [zone] = await this.d.db.select().from(zones).where(eq(zones.id, zr.zoneId));
+        if (relay?.open && zr.commandId && relay.cmdId === zr.commandId && zr.actualStart) {
+          const plannedEnd = zr.actualStart.getTime() + zr.plannedMinutes * 60_000;
+          const start = zr.actualStart.getTime();
+          adoptions.push(new Promise<void>((resolve) => {
+            this.d.dispatcher.adoptRun(site.id, zr.zoneId, zone.headCount * zone.flowPerHeadLpm, plannedEnd, (o) => {
+              if (o.kind === 'closed' || o.kind === 'failed') {
+                void this.finishZone(zr, o.kind === 'failed' ? { state: 'failed', reason: o.error } : { state: 'completed', reason: 'Resumed after a server restart' }, start, o.at).then(resolve);
+              }
+            });
+          }));
+          resumed++;
+        } else {
+          await this.finishZone(zr, { state: 'stopped', reason: 'The server restarted during this zone; the board closed the valve by itself' }, zr.actualStart?.getTime() ?? null, zr.actualStart ? Math.min(this.d.clock.now(), zr.actualStart.getTime() + zr.plannedMinutes * 60_000) : null);
+          ended++;
+        }
+      }
+      const stale = zrs.filter((z) => z.state === 'planned' && z.plannedStart.getTime() < this.d.clock.now() - 3_600_000);
+      for (const zr of stale) await this.finishZone(zr, { state: 'failed', reason: 'Missed while no server was dispatching' }, null, null);
+      void this.executeRun(run.id, site, adoptions);
+    }
+    return { resumed, ended };
+  }
+}
