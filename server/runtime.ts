@@ -13,6 +13,7 @@ import { LiveBus } from './live/bus';
 import { attachLiveHub, type LiveHub } from './live/hub';
 import { ValveDispatcher } from './services/dispatcher';
 import type { Services } from './services/registry';
+import { Scheduler } from './scheduler/scheduler';
 
 export type Runtime = {
   config: Config;
@@ -43,6 +44,15 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
   const dbh = createDb(config.DATABASE_URL, { max: 20 });
   const { db, pool } = dbh;
 
+  const extras: Runtime['extras'] = [];
+  if (!config.WEATHER_URL && config.NODE_ENV !== 'production') {
+    // The local stand-in for a hosted weather service (deterministic, invented data).
+    const { startFakeWeatherService } = await import('./weather/fake-service');
+    const fake = await startFakeWeatherService({ port: config.WEATHER_PORT, host: config.WEATHER_HOST });
+    config.WEATHER_URL = fake.url;
+    extras.push({ name: 'fake-weather', close: () => fake.close() });
+  }
+
   const bus = new LiveBus();
   const fleet = new Fleet(db);
   await fleet.load();
@@ -57,6 +67,7 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
     external: config.MQTT_URL ? { url: config.MQTT_URL, clientId: `runnel-server-${process.pid}` } : undefined,
     sink,
     log,
+    now: () => clock.now(),
   });
   const dispatcher = new ValveDispatcher({
     db, fleet, bus, clock, log: log.child({ part: 'dispatcher' }),
@@ -66,7 +77,11 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
     failsafeMarginS: config.FAILSAFE_MARGIN_SECONDS,
   });
   sink.setListener(dispatcher);
-  const services: Services = { fleet, bus, gateway, dispatcher, demo: {} };
+  const scheduler = new Scheduler({
+    db, databaseUrl: config.DATABASE_URL, dispatcher, fleet, bus, clock, log: log.child({ part: 'scheduler' }),
+    tickMs: config.SCHEDULER_TICK_MS, reconcileDelayMs: config.RECONCILE_DELAY_MS,
+  });
+  const services: Services = { fleet, bus, gateway, dispatcher, scheduler, demo: {} };
 
   const { app, sessionMiddleware } = createApp({
     config, db, pool, log, clock, services,
@@ -83,15 +98,16 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
   const url = `http://${config.HOST}:${port}`;
   const mqttUrl = gateway.port !== null ? `mqtt://${config.MQTT_HOST}:${gateway.port}` : (config.MQTT_URL ?? null);
 
+  if (config.SCHEDULER) scheduler.start();
   const sweep = setInterval(() => void sink.sweepSilent(config.OFFLINE_AFTER_SECONDS * 1000).catch(() => {}), 5000);
   sweep.unref();
 
-  const extras: Runtime['extras'] = [];
   let closing: Promise<void> | null = null;
   const close = () =>
     (closing ??= (async () => {
       clearInterval(sweep);
       for (const e of extras.reverse()) await e.close().catch((err) => log.warn({ err, part: e.name }, 'close failed'));
+      await scheduler.stop();
       dispatcher.stop();
       await hub.close();
       await new Promise<void>((ok) => {

@@ -1,7 +1,9 @@
-import { sql } from 'drizzle-orm';
+import { eq, sql } from 'drizzle-orm';
 import type { Db } from './client';
 import { controllers, siteMembers, sites, users, zones, type NewZone, type WateringRestrictions } from './schema/index';
 import { hashPassword } from '../services/auth';
+import { programCrons, type DayRule } from '../scheduler/calendar';
+import { programZones, programs } from './schema/index';
 import { seedDemoWeather } from './seed-weather';
 
 /**
@@ -35,7 +37,18 @@ type SiteSeed = {
   staticPressureKPa: number;
   supplyMarginPct: number;
   restrictions: WateringRestrictions;
+  allowParallel?: boolean;
   controllers: ControllerSeed[];
+  programs?: ProgramSeed[];
+};
+type ProgramSeed = {
+  name: string;
+  startTimes: string[];
+  dayRule: DayRule;
+  mode: 'fixed' | 'seasonal' | 'weather';
+  seasonalPct?: number;
+  /** zone name → minutes */
+  zones: [string, number][];
 };
 
 const z = (
@@ -64,6 +77,12 @@ export const demoSites: SiteSeed[] = [
     staticPressureKPa: 414,
     supplyMarginPct: 20,
     restrictions: { dayRule: 'weekdays', weekdays: [1, 3, 5, 6], noWateringWindows: [{ startMinute: 600, endMinute: 1080 }] },
+    programs: [
+      { name: 'Early lawns', startTimes: ['04:30'], dayRule: { kind: 'weekdays', weekdays: [1, 3, 5, 6] }, mode: 'seasonal', seasonalPct: 90,
+        zones: [['Front lawn east', 12], ['Front lawn west', 12], ['Courtyard rotors', 30], ['Dog run', 10], ['C-block lawn', 12]] },
+      { name: 'Beds and hedges', startTimes: ['06:00'], dayRule: { kind: 'weekdays', weekdays: [1, 5] }, mode: 'weather',
+        zones: [['Pool deck planters', 30], ['Entry shrub beds', 15], ['C-block hedges', 30], ['Parking islands', 10]] },
+    ],
     controllers: [
       {
         serial: 'FHG-LC-0101', name: 'Clubhouse board', relayCount: 8, staggerMs: 600, maxConcurrentValves: 2,
@@ -100,6 +119,13 @@ export const demoSites: SiteSeed[] = [
     staticPressureKPa: 483,
     supplyMarginPct: 15,
     restrictions: { dayRule: 'any', weekdays: [], noWateringWindows: [{ startMinute: 420, endMinute: 1140 }] },
+    allowParallel: true,
+    programs: [
+      { name: 'Night turf', startTimes: ['21:30'], dayRule: { kind: 'interval', everyDays: 2, anchorDate: '2026-01-01' }, mode: 'fixed',
+        zones: [['North berm rotors', 35], ['Lobby lawn', 12], ['South lawn rotors', 35], ['Picnic lawn', 12], ['East slope', 10]] },
+      { name: 'Planters and trees', startTimes: ['04:00'], dayRule: { kind: 'weekdays', weekdays: [0, 2, 4] }, mode: 'weather',
+        zones: [['Bioswale plugs', 25], ['Street trees', 40], ['Patio planters', 20], ['Parking medians', 25], ['Loading dock beds', 15]] },
+    ],
     controllers: [
       {
         serial: 'FHG-QR-0201', name: 'North lot board', relayCount: 8, staggerMs: 700, maxConcurrentValves: 3,
@@ -137,6 +163,13 @@ export const demoSites: SiteSeed[] = [
     staticPressureKPa: 517,
     supplyMarginPct: 20,
     restrictions: { dayRule: 'any', weekdays: [], noWateringWindows: [{ startMinute: 420, endMinute: 1200 }] },
+    allowParallel: true,
+    programs: [
+      { name: 'Playing fields', startTimes: ['22:00'], dayRule: { kind: 'weekdays', weekdays: [0, 2, 4, 6] }, mode: 'weather',
+        zones: [['Soccer pitch north', 40], ['Soccer pitch south', 40], ['Baseball infield skirt', 30], ['Outfield', 45]] },
+      { name: 'Beds and garden', startTimes: ['05:30'], dayRule: { kind: 'interval', everyDays: 2, anchorDate: '2026-01-02' }, mode: 'fixed',
+        zones: [['Bleacher beds', 30], ['Garden club plots', 25]] },
+    ],
     controllers: [
       {
         serial: 'FHG-MB-0301', name: 'Field house board', relayCount: 8, staggerMs: 800, maxConcurrentValves: 2,
@@ -164,6 +197,12 @@ export const demoSites: SiteSeed[] = [
     staticPressureKPa: 448,
     supplyMarginPct: 20,
     restrictions: { dayRule: 'odd', weekdays: [], noWateringWindows: [{ startMinute: 540, endMinute: 1140 }] },
+    programs: [
+      { name: 'Odd-day turf', startTimes: ['05:00'], dayRule: { kind: 'odd' }, mode: 'seasonal', seasonalPct: 100,
+        zones: [['Entry median', 10], ['Lakeside path lawn', 25], ['Pool lawn', 10], ['Tot lot groundcover', 8]] },
+      { name: 'Shrubs and oaks', startTimes: ['06:15'], dayRule: { kind: 'odd' }, mode: 'weather',
+        zones: [['Mailbox kiosk beds', 25], ['Oak grove', 40], ['Fence line shrubs', 25], ['Clubhouse roses', 15]] },
+    ],
     controllers: [
       {
         serial: 'FHG-HL-0401', name: 'Gatehouse board', relayCount: 6, staggerMs: 500, maxConcurrentValves: 2,
@@ -208,7 +247,7 @@ export async function seedDemo(db: Db, opts: { production?: boolean } = {}): Pro
     const siteIds: Record<string, number> = {};
     const controllerIds: Record<string, number> = {};
     for (const s of demoSites) {
-      const { key, controllers: cs, ...site } = s;
+      const { key, controllers: cs, programs: ps, ...site } = s;
       const [row] = await tx.insert(sites).values(site).returning({ id: sites.id });
       siteIds[key] = row.id;
       for (const c of cs) {
@@ -219,6 +258,20 @@ export async function seedDemo(db: Db, opts: { production?: boolean } = {}): Pro
           .returning({ id: controllers.id });
         controllerIds[c.serial] = crow.id;
         await tx.insert(zones).values(zs.map((zz) => ({ ...zz, controllerId: crow.id })));
+      }
+      const siteZones = await tx.select({ id: zones.id, name: zones.name }).from(zones).innerJoin(controllers, eq(zones.controllerId, controllers.id)).where(eq(controllers.siteId, row.id));
+      for (const p of ps ?? []) {
+        const [prow] = await tx
+          .insert(programs)
+          .values({ siteId: row.id, name: p.name, startTimes: p.startTimes, dayRule: p.dayRule, crons: programCrons({ startTimes: p.startTimes, dayRule: p.dayRule, activeFrom: null, activeTo: null }), mode: p.mode, seasonalPct: p.seasonalPct ?? 100 })
+          .returning({ id: programs.id });
+        await tx.insert(programZones).values(
+          p.zones.map(([name, minutes], i) => {
+            const z = siteZones.find((x) => x.name === name);
+            if (!z) throw new Error(`demo program ${p.name}: no zone ${name}`);
+            return { programId: prow.id, zoneId: z.id, position: i + 1, minutes, cycleSoak: 'auto' as const };
+          }),
+        );
       }
     }
     const userIds: Record<string, number> = {};

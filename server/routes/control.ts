@@ -1,7 +1,9 @@
 import { Router, type Request } from 'express';
 import { z } from 'zod';
 import { idParam } from '../contracts/common';
-import { AppError, forbidden } from '../errors';
+import { AppError, conflict, forbidden } from '../errors';
+import { realClock } from '../clock';
+import { siteHold } from '../scheduler/holds';
 import { actorOf, requireAuth } from '../middleware/auth';
 import { parse } from '../middleware/validate';
 import { recordAudit } from '../services/audit';
@@ -30,14 +32,24 @@ export function zoneControlRoutes(deps: AppDeps): Router {
       .int('Whole minutes')
       .min(1, 'At least 1 minute')
       .max(deps.config.MANUAL_MAX_MINUTES, `At most ${deps.config.MANUAL_MAX_MINUTES} minutes`),
+    /** A technician testing a valve during a rain hold says so explicitly; it is audited. */
+    overrideHold: z.boolean().optional(),
   });
   r.use(requireAuth);
   r.post('/:id/start', async (req, res) => {
     const { id } = parse(idParam, req.params);
     const { zone, site } = await loadVisibleZone({ db, actor: actorOf(req) }, id);
     const actor = mayControl(req);
-    const { minutes } = parse(startBody, req.body);
+    const { minutes, overrideHold } = parse(startBody, req.body);
     const s = services(deps);
+    const hold = await siteHold(db, s.fleet, site, (deps.clock ?? realClock).now());
+    if (hold) {
+      if (!(actor.role === 'technician' && overrideHold)) {
+        await recordAudit(db, actor, { action: 'valve.start', entityType: 'zone', entityId: zone.id, siteId: site.id, outcome: 'held', after: { minutes, hold: hold.reason } });
+        throw conflict('rain_hold', `${hold.reason}. ${actor.role === 'technician' ? 'To test a valve anyway, start it with the hold override.' : 'Watering resumes when the hold ends.'}`, { hold });
+      }
+      await recordAudit(db, actor, { action: 'valve.hold_override', entityType: 'zone', entityId: zone.id, siteId: site.id, outcome: 'override', after: { minutes, hold: hold.reason } });
+    }
     try {
       const out = await s.dispatcher.start({ zoneId: zone.id, seconds: minutes * 60, origin: 'manual', actor });
       await recordAudit(db, actor, { action: 'valve.start', entityType: 'zone', entityId: zone.id, siteId: site.id, outcome: out.state, after: { minutes, commandId: out.commandId } });

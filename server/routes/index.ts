@@ -10,6 +10,8 @@ import { weatherRoutes } from './weather';
 import { zoneRoutes } from './zones';
 import { siteControlRoutes, zoneControlRoutes } from './control';
 import { demoRoutes } from './demo';
+import { programRoutes, siteScheduleRoutes } from './programs';
+import { walkRoutes } from './walks';
 
 /**
  * Every API router and where it is mounted under /api. A new resource is one line here.
@@ -26,5 +28,10 @@ export const apiRouters: { path: string; build: (deps: AppDeps) => Router }[] = 
   { path: '/', build: planningRoutes },
   { path: '/zones', build: zoneControlRoutes },
   { path: '/sites', build: siteControlRoutes },
+  { path: '/sites', build: siteScheduleRoutes },
+  { path: '/programs', build: programRoutes },
+  { path: '/sites', build: (d) => walkRoutes(d).sites },
+  { path: '/walks', build: (d) => walkRoutes(d).walks },
+  { path: '/zones', build: (d) => walkRoutes(d).zoneRecords },
   { path: '/demo', build: demoRoutes },
 ];

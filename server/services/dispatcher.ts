@@ -82,6 +82,11 @@ export class ValveDispatcher implements ValveListener {
 
   constructor(private d: DispatcherDeps) {}
 
+  /** Commands waiting for an acknowledgement right now. */
+  get inFlight(): number {
+    return this.acks.size;
+  }
+
   private site(siteId: number): SiteState {
     let s = this.sites.get(siteId);
     if (!s) this.sites.set(siteId, (s = { active: new Map(), queue: [] }));

@@ -9,6 +9,8 @@ export function testConfig(databaseUrl: string, extra: Record<string, string> = 
     LOGIN_RATE_LIMIT: '1000',
     MQTT_PORT: '0',
     SIM_PORT: '0',
+    WEATHER_PORT: '0',
+    FAKE_SMTP_PORT: '0',
     ...extra,
   });
 }

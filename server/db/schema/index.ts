@@ -6,3 +6,5 @@ export * from './audit';
 export * from './telemetry';
 export * from './weather';
 export * from './programs';
+export * from './history';
+export * from './alerts';
