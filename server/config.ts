@@ -31,7 +31,7 @@ const configSchema = z
     FAILSAFE_MARGIN_SECONDS: z.coerce.number().int().min(1).max(600).default(30),
     /** Take part in the election of the one instance that dispatches schedules. */
     SCHEDULER: bool.default(true),
-    SCHEDULER_TICK_MS: z.coerce.number().int().min(10).max(60_000).default(1000),
+    SCHEDULER_TICK_MS: z.coerce.number().int().min(10).max(600_000).default(1000),
     RECONCILE_DELAY_MS: z.coerce.number().int().min(0).max(120_000).default(5000),
     OFFLINE_AFTER_SECONDS: z.coerce.number().int().min(5).max(3600).default(90),
     READING_BATCH_ROWS: z.coerce.number().int().min(1).max(100_000).default(5000),
@@ -54,7 +54,17 @@ const configSchema = z
     /** Messages the fake SMTP server keeps (oldest dropped first). */
     FAKE_SMTP_KEEP: z.coerce.number().int().min(1).max(10_000).default(200),
     /** Timezone that sets the hour of the daily digest and the week of the weekly summary. */
-    MAIL_TIMEZONE: z.string().default('UTC'),
+    MAIL_TIMEZONE: z
+      .string()
+      .refine((tz) => {
+        try {
+          new Intl.DateTimeFormat('en', { timeZone: tz });
+          return true;
+        } catch {
+          return false;
+        }
+      }, 'MAIL_TIMEZONE must be an IANA timezone such as Europe/Lisbon')
+      .default('UTC'),
     MAIL_DIGEST_HOUR: z.coerce.number().int().min(0).max(23).default(7),
     /** 1 = Monday … 7 = Sunday. */
     MAIL_WEEKLY_DAY: z.coerce.number().int().min(1).max(7).default(1),

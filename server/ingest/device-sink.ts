@@ -38,7 +38,7 @@ const digest = (s: string) => createHash('sha256').update(s).digest('hex');
 export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: ValveListener): void; sweepSilent(offlineAfterMs: number): Promise<void> } {
   const { db, fleet, writer, bus, log } = deps;
   let listener = deps.listener;
-  const verified = new Map<string, { hash: string; secretDigest: string }>();
+  const verified = new Set<string>();
 
   async function board(serial: string): Promise<BoardLive | null> {
     return fleet.get(serial) ?? (await fleet.refreshSerial(serial));
@@ -71,12 +71,15 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
         .from(controllers)
         .where(eq(controllers.serial, serial));
       if (!c || !c.hash || c.retiredAt) return null;
-      const cached = verified.get(serial);
-      const d = digest(secret);
-      let ok = cached?.hash === c.hash && cached.secretDigest === d;
+      // A (hash, secret) pair once verified stays valid; a rotated secret has a new hash.
+      const key = `${c.hash}|${digest(secret)}`;
+      let ok = verified.has(key);
       if (!ok) {
         ok = await argon2.verify(c.hash, secret).catch(() => false);
-        if (ok) verified.set(serial, { hash: c.hash, secretDigest: d });
+        if (ok) {
+          if (verified.size > 50_000) verified.clear();
+          verified.add(key);
+        }
       }
       return ok ? { lastSeq: c.lastSeq } : null;
     },

@@ -26,6 +26,8 @@ export type SchedulerDeps = {
   catchUpMs?: number;
   /** Wait after taking the lock before reconciling, so boards can report their relays. */
   reconcileDelayMs?: number;
+  /** Runs are created this far ahead of their start, so a start is dispatched on time, not at the next tick. */
+  lookaheadMs?: number;
 };
 
 /**
@@ -116,6 +118,9 @@ export class Scheduler {
       this.stats.ticks++;
       if (!(await this.ensureLeadership())) return;
       const now = this.d.clock.now();
+      const ahead = now + (this.d.lookaheadMs ?? Math.max(2 * (this.d.tickMs ?? 1000), 5000));
+      // Overlapping windows: a program saved just before its start is still found; the unique
+      // (program, start) key keeps a start that is found twice from running twice.
       const from = this.lastTick ?? now - 1000;
       this.lastTick = now;
       const list = await this.d.db
@@ -124,7 +129,7 @@ export class Scheduler {
         .innerJoin(sites, eq(programs.siteId, sites.id))
         .where(eq(programs.enabled, true));
       for (const { program, site } of list) {
-        for (const t of occurrences(program, site.timezone, from, now)) {
+        for (const t of occurrences(program, site.timezone, from, ahead)) {
           const [created] = await this.d.db
             .insert(runs)
             .values({ siteId: site.id, programId: program.id, scheduledFor: new Date(t), state: 'planned' })

@@ -21,7 +21,7 @@ export type ScheduledWorld = {
 };
 
 export const schedulerSettings = {
-  SCHEDULER_TICK_MS: '60000',
+  SCHEDULER_TICK_MS: '300000',
   RECONCILE_DELAY_MS: '2000',
   OFFLINE_AFTER_SECONDS: '3600',
   ACK_TIMEOUT_MS: '4000',

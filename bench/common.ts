@@ -1,0 +1,51 @@
+import pg from 'pg';
+import { randomBytes } from 'node:crypto';
+import { createDb, type DbHandle } from '../server/db/client';
+import { runMigrations } from '../server/db/migrate';
+import { loadConfig, type Config } from '../server/config';
+
+export function adminUrl(): string {
+  const u = process.env.BENCH_ADMIN_DATABASE_URL ?? process.env.TEST_ADMIN_DATABASE_URL;
+  if (!u) throw new Error('BENCH_ADMIN_DATABASE_URL is not set: run `npm run bench`, which starts PostgreSQL');
+  return u;
+}
+
+export type BenchDb = DbHandle & { url: string; drop: () => Promise<void> };
+
+/** A fresh, migrated database for one benchmark. */
+export async function benchDb(label: string): Promise<BenchDb> {
+  const name = `runnel_bench_${label}_${randomBytes(3).toString('hex')}`;
+  const admin = new pg.Client({ connectionString: `${adminUrl()}/postgres` });
+  await admin.connect();
+  await admin.query(`create database "${name}"`);
+  await admin.end();
+  const url = `${adminUrl()}/${name}`;
+  const dbh = createDb(url, { max: 4 });
+  await runMigrations(dbh.db);
+  return {
+    ...dbh, url,
+    drop: async () => {
+      await dbh.close().catch(() => {});
+      const a = new pg.Client({ connectionString: `${adminUrl()}/postgres` });
+      await a.connect();
+      await a.query(`drop database if exists "${name}" with (force)`);
+      await a.end();
+    },
+  };
+}
+
+export function benchConfig(url: string, extra: Record<string, string> = {}): Config {
+  return loadConfig({
+    NODE_ENV: 'test', DATABASE_URL: url, PORT: '0', MQTT_PORT: '0', SIM_PORT: '0', WEATHER_PORT: '0', LOG_LEVEL: 'error',
+    LOGIN_RATE_LIMIT: '10000', SCHEDULER: '0', OFFLINE_AFTER_SECONDS: '3600', ...extra,
+  });
+}
+
+export function percentile(xs: number[], p: number): number {
+  if (!xs.length) return NaN;
+  const s = [...xs].sort((a, b) => a - b);
+  return s[Math.min(s.length - 1, Math.max(0, Math.ceil((p / 100) * s.length) - 1))];
+}
+
+export const round = (v: number, d = 1) => Math.round(v * 10 ** d) / 10 ** d;
+export const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));

@@ -1,0 +1,136 @@
+import { spawn } from 'node:child_process';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import readline from 'node:readline';
+import { sql } from 'drizzle-orm';
+import WebSocket from 'ws';
+import { startRuntime } from '../server/runtime';
+import { benchConfig, benchDb, percentile, round, sleep } from './common';
+import { BENCH_PASSWORD, buildFleet } from './fleet-world';
+
+export type IngestResult = {
+  controllers: number;
+  readingsPerSecond: number;
+  lost: number;
+  valveEventP50Ms: number;
+  valveEventP99Ms: number;
+  serverRssMb: number;
+  sent: number;
+  stored: number;
+  valveEvents: number;
+};
+
+/**
+ * N boards in a simulator process of their own, each sending `samplesPerSecond` readings in one
+ * message a second, against the whole server in this process. Readings persisted per second over
+ * a measuring window; lost = samples the boards had acknowledged minus rows stored; valve event
+ * latency = board publish time to a WebSocket client's receipt, while valves are being switched.
+ */
+export async function benchIngest(n: number, opts: { windowMs?: number; samplesPerSecond?: number } = {}): Promise<IngestResult> {
+  const windowMs = opts.windowMs ?? 20_000;
+  const perSecond = opts.samplesPerSecond ?? 25;
+  const db = await benchDb(`ingest${n}`);
+  const { boards, zoneIds } = await buildFleet(db, n);
+  const rt = await startRuntime(benchConfig(db.url, { READING_BATCH_ROWS: '10000', READING_FLUSH_MS: '200', ACK_TIMEOUT_MS: '5000' }));
+  const fleetFile = path.join(os.tmpdir(), `runnel-bench-fleet-${n}.json`);
+  fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
+  const child = spawn(process.execPath, ['--import', 'tsx', 'bench/sim-child.ts', fleetFile, rt.mqttUrl!, String(Math.round(1000 / perSecond)), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
+  const lines = readline.createInterface({ input: child.stdout! });
+  const msgs: Record<string, unknown>[] = [];
+  const waitFor = (key: string) =>
+    new Promise<Record<string, unknown>>((resolve) => {
+      const hit = msgs.find((m) => key in m);
+      if (hit) return resolve(hit);
+      lines.on('line', function on(l) {
+        try {
+          const m = JSON.parse(l);
+          msgs.push(m);
+          if (key in m) {
+            lines.off('line', on);
+            resolve(m);
+          }
+        } catch {
+          /* not ours */
+        }
+      });
+    });
+  await waitFor('ready');
+  // a browser's view: sign in and listen on /ws
+  const res = await fetch(`${rt.url}/api/auth/sign-in`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email: 'bench@runnel.test', password: BENCH_PASSWORD }) });
+  const cookie = res.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
+  const ws = new WebSocket(`${rt.url.replace('http', 'ws')}/ws`, { headers: { cookie, origin: rt.url } });
+  const latencies: number[] = [];
+  let measuring = false;
+  ws.on('message', (d) => {
+    const t = Date.now();
+    const m = JSON.parse(String(d));
+    if (measuring && m.type === 'valve') latencies.push(t - Date.parse(m.at));
+  });
+  await new Promise((r) => ws.once('open', r));
+  await sleep(5000); // warm up: every board connected and sending
+  const count = async () => Number((await db.db.execute(sql`select count(*) as n from readings`)).rows[0].n);
+  measuring = true;
+  let peakRss = process.memoryUsage().rss;
+  const c0 = await count();
+  const t0 = Date.now();
+  // switch valves while measuring: a random zone for 2 s, ten times a second
+  const valveTimer = setInterval(() => {
+    const z = zoneIds[Math.floor(Math.random() * zoneIds.length)];
+    void rt.services.dispatcher.start({ zoneId: z, seconds: 2, origin: 'manual' }).catch(() => {});
+    peakRss = Math.max(peakRss, process.memoryUsage().rss);
+  }, 100);
+  await sleep(windowMs);
+  clearInterval(valveTimer);
+  const c1 = await count();
+  const t1 = Date.now();
+  measuring = false;
+  child.kill('SIGINT');
+  const totals = (await waitFor('done')) as { sent: number; taken: number };
+  await sleep(500);
+  await rt.writer.flush();
+  const stored = await count();
+  ws.close();
+  await rt.close();
+  await db.drop();
+  fs.rmSync(fleetFile, { force: true });
+  return {
+    controllers: n,
+    readingsPerSecond: Math.round((c1 - c0) / ((t1 - t0) / 1000)),
+    lost: Math.max(0, totals.sent - stored),
+    valveEventP50Ms: round(percentile(latencies, 50)),
+    valveEventP99Ms: round(percentile(latencies, 99)),
+    serverRssMb: Math.round(peakRss / 1024 / 1024),
+    sent: totals.sent,
+    stored,
+    valveEvents: latencies.length,
+  };
+}
+
+/** PostgreSQL's own COPY rate into the readings table, from one connection, on this machine. */
+export async function benchRawCopy(rows = 1_000_000): Promise<number> {
+  const db = await benchDb('copy');
+  const { from: copyFrom } = await import('pg-copy-streams');
+  const { pipeline } = await import('node:stream/promises');
+  const { Readable } = await import('node:stream');
+  const client = await db.pool.connect();
+  const now = Date.now();
+  function* gen() {
+    let chunk = '';
+    for (let i = 0; i < rows; i++) {
+      const at = new Date(now + i).toISOString();
+      chunk += `${(i % 1000) + 1}\t${at}\t${at}\t${at}\t${i}\tf\t1800\t31.5\t25.1\t12.3\t-60\n`;
+      if (chunk.length > 512_000) {
+        yield chunk;
+        chunk = '';
+      }
+    }
+    if (chunk) yield chunk;
+  }
+  const t0 = performance.now();
+  await pipeline(Readable.from(gen()), client.query(copyFrom('copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin')));
+  const secs = (performance.now() - t0) / 1000;
+  client.release();
+  await db.drop();
+  return Math.round(rows / secs);
+}

@@ -1,0 +1,64 @@
+import fs from 'node:fs';
+import path from 'node:path';
+import { benchIngest, benchRawCopy, type IngestResult } from './ingest';
+import { benchSchedule } from './schedule';
+
+/**
+ * npm run bench — every benchmark in one run on this machine; writes bench/results/latest.json
+ * and prints a table. Pick parts with BENCH_ONLY=ingest,copy,schedule,history.
+ */
+const only = new Set((process.env.BENCH_ONLY ?? 'ingest,copy,schedule,history,scale').split(','));
+const out: Record<string, unknown> = { machine: { cpus: (await import('node:os')).cpus().length, node: process.version, at: new Date().toISOString() } };
+const file = path.resolve('bench/results/latest.json');
+const save = () => {
+  fs.mkdirSync(path.dirname(file), { recursive: true });
+  fs.writeFileSync(file, JSON.stringify(out, null, 2) + '\n');
+};
+
+if (only.has('copy')) {
+  out.pgCopyRowsPerSecond = await benchRawCopy();
+  console.log(`raw COPY: ${out.pgCopyRowsPerSecond} rows/s`);
+  save();
+}
+if (only.has('ingest')) {
+  const ingest: IngestResult[] = [];
+  for (const n of (process.env.BENCH_BOARDS ?? '100,1000,2000').split(',').map(Number)) {
+    const r = await benchIngest(n);
+    ingest.push(r);
+    console.log(`ingest ${n} boards: ${r.readingsPerSecond} readings/s, lost ${r.lost}, valve p50 ${r.valveEventP50Ms} ms p99 ${r.valveEventP99Ms} ms, rss ${r.serverRssMb} MB`);
+    out.ingest = ingest;
+    save();
+  }
+  if (typeof out.pgCopyRowsPerSecond === 'number') {
+    const r1000 = ingest.find((r) => r.controllers === 1000);
+    if (r1000) out.ingestShareOfCopy = Math.round((r1000.readingsPerSecond / (out.pgCopyRowsPerSecond as number)) * 1000) / 1000;
+  }
+  save();
+}
+if (only.has('schedule')) {
+  out.schedule = await benchSchedule();
+  console.log('schedule:', JSON.stringify(out.schedule));
+  save();
+}
+if (only.has('history')) {
+  try {
+    const { benchHistory } = await import('./history');
+    out.history = await benchHistory();
+    console.log('history:', JSON.stringify(out.history));
+  } catch (e) {
+    console.error('history benchmark failed:', (e as Error).message);
+  }
+  save();
+}
+if (only.has('scale')) {
+  try {
+    const { benchScale } = await import('./scale');
+    out.scale = await benchScale();
+    console.log('scale:', JSON.stringify(out.scale));
+  } catch (e) {
+    console.error('scale benchmark not run:', (e as Error).message);
+  }
+  save();
+}
+console.log(`written ${file}`);
+process.exit(0);

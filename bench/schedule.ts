@@ -1,0 +1,59 @@
+import { DateTime } from 'luxon';
+import { sql } from 'drizzle-orm';
+import { programZones, programs } from '../server/db/schema/index';
+import { programCrons } from '../server/scheduler/calendar';
+import { startRuntime } from '../server/runtime';
+import { startSimulator } from '../simulator/fleet';
+import { benchConfig, benchDb, percentile, round, sleep } from './common';
+import { buildFleet } from './fleet-world';
+
+export type ScheduleResult = { zones: number; controllers: number; latenessP50Ms: number; latenessP99Ms: number; minStaggerGapMs: number; staggerSettingMs: number; opened: number };
+
+/**
+ * 10,000 zones due in the same minute. A board has at most 8 relays, so the zones sit on 1,250
+ * boards (8 each, all allowed open at once, sites with ample supply). Lateness = when the board
+ * energised the relay minus the planned start; the stagger gap is measured between relay starts
+ * on each board.
+ */
+export async function benchSchedule(opts: { zones?: number; staggerMs?: number } = {}): Promise<ScheduleResult> {
+  const zonesTotal = opts.zones ?? 10_000;
+  const perBoard = 8;
+  const boardsN = Math.ceil(zonesTotal / perBoard);
+  const stagger = opts.staggerMs ?? 50;
+  const db = await benchDb('schedule');
+  const { boards, siteIds } = await buildFleet(db, boardsN, { zonesPer: perBoard, relayCount: 8, cap: 8, staggerMs: stagger });
+  const rt = await startRuntime(benchConfig(db.url, { SCHEDULER: '1', SCHEDULER_TICK_MS: '1000', ACK_TIMEOUT_MS: '10000', RECONCILE_DELAY_MS: '60000' }));
+  const sim = await startSimulator({ brokerUrl: rt.mqttUrl!, boards, seed: 9, sampleIntervalMs: 300_000, connectBatchSize: 100 });
+  await sim.ready();
+  while (rt.services.fleet.all().filter((b) => b.online).length < boardsN) await sleep(200);
+  // every site's program starts at the next whole minute at least 40 s away
+  const start = DateTime.now().setZone('America/Denver').plus({ seconds: 40 }).startOf('minute').plus({ minutes: 1 });
+  const startTimes = [start.toFormat('HH:mm')];
+  const dayRule = { kind: 'weekdays' as const, weekdays: [0, 1, 2, 3, 4, 5, 6] };
+  const zoneBySite = new Map<number, number[]>();
+  const rows = await db.db.execute(sql`select z.id, c.site_id from zones z join controllers c on c.id = z.controller_id order by z.id`);
+  for (const r of rows.rows as { id: number; site_id: number }[]) zoneBySite.set(r.site_id, [...(zoneBySite.get(r.site_id) ?? []), r.id]);
+  for (const siteId of siteIds) {
+    const [p] = await db.db.insert(programs).values({ siteId, name: 'Bench', startTimes, dayRule, crons: programCrons({ startTimes, dayRule, activeFrom: null, activeTo: null }) }).returning();
+    await db.db.insert(programZones).values((zoneBySite.get(siteId) ?? []).map((zoneId, i) => ({ programId: p.id, zoneId, minutes: 1, position: i + 1, cycleSoak: 'off' as const })));
+  }
+  const startMs = start.toMillis();
+  await sleep(Math.max(0, startMs - Date.now()) + 15_000);
+  const lateness: number[] = [];
+  let minGap = Infinity;
+  for (const b of sim.boards.values()) {
+    const log = b.energizeLog.filter((e) => e.atMs >= startMs - 1000).map((e) => e.atMs).sort((x, y) => x - y);
+    for (const t of log) lateness.push(t - startMs);
+    for (let i = 1; i < log.length; i++) minGap = Math.min(minGap, log[i] - log[i - 1]);
+  }
+  const opened = lateness.length;
+  await sleep(50_000); // let the one-minute runs end before closing
+  await sim.close();
+  await rt.close();
+  await db.drop();
+  return {
+    zones: zonesTotal, controllers: boardsN,
+    latenessP50Ms: round(percentile(lateness, 50)), latenessP99Ms: round(percentile(lateness, 99)),
+    minStaggerGapMs: Number.isFinite(minGap) ? round(minGap) : NaN, staggerSettingMs: stagger, opened,
+  };
+}

@@ -1,0 +1,27 @@
+import fs from 'node:fs';
+import { startSimulator } from '../simulator/fleet';
+import { fleetFileSchema } from '../simulator/spec';
+
+/**
+ * The simulated fleet in a process of its own for benchmarks (so it does not share the
+ * server's core). argv: fleetFile brokerUrl sampleMs samplesPerMessage. On SIGINT it stops
+ * every board (each flushes and waits for its PUBACKs) and prints its totals as JSON.
+ */
+const [fleetFile, brokerUrl, sampleMs, perMsg] = process.argv.slice(2);
+const fleet = fleetFileSchema.parse(JSON.parse(fs.readFileSync(fleetFile, 'utf8')));
+const sim = await startSimulator({ brokerUrl, boards: fleet.boards, seed: 42, sampleIntervalMs: Number(sampleMs), samplesPerMessage: Number(perMsg), connectBatchSize: 100 });
+await sim.ready();
+process.stdout.write(JSON.stringify({ ready: true }) + '\n');
+process.on('SIGINT', async () => {
+  await sim.close();
+  let sent = 0;
+  let taken = 0;
+  let dropped = 0;
+  for (const b of sim.boards.values()) {
+    sent += b.stats.samplesSent;
+    taken += b.stats.samplesTaken;
+    dropped += b.stats.samplesDropped;
+  }
+  process.stdout.write(JSON.stringify({ done: true, sent, taken, dropped }) + '\n');
+  process.exit(0);
+});

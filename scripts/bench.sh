@@ -1,0 +1,9 @@
+#!/usr/bin/env bash
+# npm run bench — benchmarks on this machine, against a PostgreSQL cluster of their own.
+source "$(dirname "$0")/lib.sh"
+ensure_node_modules
+ensure_postgres_binaries
+pg_up bench "${RUNNEL_BENCH_PG_PORT:-54349}"
+trap pg_down EXIT
+export BENCH_ADMIN_DATABASE_URL="$ADMIN_DATABASE_URL"
+node --max-old-space-size=2048 --import tsx bench/run.ts "$@"
