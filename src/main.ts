@@ -16,6 +16,7 @@ import { createAppRouter } from './router/index';
 import type { BootContext } from './boot/context';
 import { install as installNotify } from './boot/notify';
 import { install as installApi } from './boot/api';
+import { install as installLive } from './boot/live';
 
 // The order is fixed and visible: Quasar → Pinia → router → boot modules → mount.
 const app = createApp(App);
@@ -25,7 +26,7 @@ app.use(pinia);
 const router = createAppRouter();
 
 const ctx: BootContext = { app, pinia, router };
-for (const install of [installNotify, installApi]) install(ctx);
+for (const install of [installNotify, installApi, installLive]) install(ctx);
 
 app.use(router);
 void router.isReady().then(() => app.mount('#app'));

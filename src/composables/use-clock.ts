@@ -33,3 +33,29 @@ export function localTime(epochMs: number, timeZone: string): string {
   }
   return f.format(epochMs);
 }
+
+const rtfs = {
+  long: new Intl.RelativeTimeFormat(undefined, { numeric: 'auto' }),
+  short: new Intl.RelativeTimeFormat(undefined, { numeric: 'auto', style: 'short' }),
+};
+
+/** "12 seconds ago", "3 minutes ago", "in 2 hours" (or "12 sec. ago" in the short style). */
+export function ago(iso: string | number, nowMs: number, style: 'long' | 'short' = 'long'): string {
+  const rtf = rtfs[style];
+  const t = typeof iso === 'number' ? iso : new Date(iso).getTime();
+  const s = Math.round((t - nowMs) / 1000);
+  const a = Math.abs(s);
+  if (a < 60) return rtf.format(s, 'second');
+  if (a < 3600) return rtf.format(Math.round(s / 60), 'minute');
+  if (a < 86400) return rtf.format(Math.round(s / 3600), 'hour');
+  return rtf.format(Math.round(s / 86400), 'day');
+}
+
+/** A running time as a stopwatch shows it: "0:42", "12:05", "1:02:05". */
+export function stopwatch(ms: number): string {
+  const total = Math.max(0, Math.floor(ms / 1000));
+  const h = Math.floor(total / 3600);
+  const m = Math.floor((total % 3600) / 60);
+  const s = String(total % 60).padStart(2, '0');
+  return h ? `${h}:${String(m).padStart(2, '0')}:${s}` : `${m}:${s}`;
+}

@@ -9,6 +9,8 @@ export type NavEntry = {
   roles: readonly Role[];
   /** data-test suffix: nav-<key>. */
   key: string;
+  /** Shown only on a demo install. */
+  demoOnly?: boolean;
 };
 
 const everyone: readonly Role[] = ['admin', 'manager', 'technician', 'owner'];
@@ -19,8 +21,10 @@ const everyone: readonly Role[] = ['admin', 'manager', 'technician', 'owner'];
  */
 export const navEntries: readonly NavEntry[] = [
   { key: 'fleet', label: 'Fleet', icon: 'grid_view', to: { name: 'fleet' }, roles: everyone },
+  { key: 'calculator', label: 'Field calculator', icon: 'calculate', to: { name: 'calculator' }, roles: everyone },
+  { key: 'simulator', label: 'Simulated boards', icon: 'developer_board', to: { name: 'simulator' }, roles: ['admin'], demoOnly: true },
 ];
 
-export function navFor(role: Role | null): NavEntry[] {
-  return role ? navEntries.filter((e) => e.roles.includes(role)) : [];
+export function navFor(role: Role | null, demo = false): NavEntry[] {
+  return role ? navEntries.filter((e) => e.roles.includes(role) && (demo || !e.demoOnly)) : [];
 }

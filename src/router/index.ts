@@ -32,6 +32,10 @@ export function createAppRouter(): Router {
       Notify.create({ type: 'warning', message: 'Your role cannot open that page.' });
       return { name: 'fleet' };
     }
+    if (to.matched.some((r) => r.meta.demoOnly) && !session.me?.demo) {
+      Notify.create({ type: 'warning', message: 'That page exists only on a demo install.' });
+      return { name: 'fleet' };
+    }
     return true;
   });
 

@@ -8,6 +8,8 @@ declare module 'vue-router' {
     /** Roles that may open the page; every signed-in role when absent. */
     roles?: Role[];
     title?: string;
+    /** Only on a demo install (me.demo). */
+    demoOnly?: boolean;
   }
 }
 
@@ -30,6 +32,34 @@ export const routes: RouteRecordRaw[] = [
         props: (r) => ({ id: Number(r.params.id) }),
         meta: { title: 'Site' },
       },
+      {
+        path: 'demo/simulator',
+        name: 'simulator',
+        component: () => import('../pages/SimulatorPage.vue'),
+        meta: { title: 'Simulated boards', roles: ['admin'], demoOnly: true },
+      },
+      {
+        path: 'sites/:id(\\d+)/supply',
+        name: 'site-supply',
+        component: () => import('../pages/SupplyPage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Supply' },
+      },
+      {
+        path: 'sites/:id(\\d+)/planning',
+        name: 'site-planning',
+        component: () => import('../pages/PlanningPage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Zone planning' },
+      },
+      {
+        path: 'sites/:id(\\d+)/watering',
+        name: 'site-watering',
+        component: () => import('../pages/WateringNeedPage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Watering need' },
+      },
+      { path: 'calculator', name: 'calculator', component: () => import('../pages/CalculatorPage.vue'), meta: { title: 'Field calculator' } },
       // Programs, History, Alerts, Calculator … are added here with their pages (and in layouts/nav.ts).
       { path: ':rest(.*)*', name: 'not-found', component: () => import('../pages/NotFoundPage.vue'), meta: { title: 'Not found' } },
     ],
