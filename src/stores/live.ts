@@ -46,6 +46,8 @@ export const useLiveStore = defineStore('live', () => {
   /** Words for our own commands' notices (command id → zone name). */
   const labels = new Map<string, string>();
   const commandListeners = new Set<(e: CommandLiveEvent) => void>();
+  /** Pages that follow other kinds of frames (runs, holds, walks), and every snapshot. */
+  const frameListeners = new Set<(f: LiveFrame) => void>();
   const activityTimers = new Map<number, ReturnType<typeof setTimeout>>();
   let client: LiveClient | null = null;
 
@@ -54,6 +56,13 @@ export const useLiveStore = defineStore('live', () => {
 
   function onFrame(f: LiveFrame) {
     const now = Date.now();
+    for (const fn of frameListeners) {
+      try {
+        fn(f);
+      } catch {
+        // A page's listener must not stop the live picture.
+      }
+    }
     if (!applyFrame(state, f, now)) return;
     if (f.type === 'snapshot') {
       snapshotAt.value = f.at as string;
@@ -147,6 +156,12 @@ export const useLiveStore = defineStore('live', () => {
     return () => commandListeners.delete(fn);
   }
 
+  /** Follow every frame from /ws (snapshots included, so a page can refetch after a reconnect). */
+  function onFrames(fn: (f: LiveFrame) => void): () => void {
+    frameListeners.add(fn);
+    return () => frameListeners.delete(fn);
+  }
+
   const labelOf = (commandId: string) => labels.get(commandId);
 
   function queuePosition(zoneId: number): { position: number; commandId: string } | null {
@@ -198,7 +213,7 @@ export const useLiveStore = defineStore('live', () => {
 
   return {
     state, connection, clockOffsetMs, snapshotAt, closing,
-    start, stop, resync, noteStart, markClosing, onCommand, labelOf,
+    start, stop, resync, noteStart, markClosing, onCommand, onFrames, labelOf,
     zoneState, queuePosition, siteSummary, openRelay, serverNow,
   };
 });
