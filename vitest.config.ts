@@ -38,6 +38,18 @@ export default defineConfig({
           sequence: { groupOrder: 2 },
         },
       },
+      {
+        test: {
+          name: 'faults',
+          include: ['tests/faults/**/*.test.ts'],
+          environment: 'node',
+          globalSetup: ['tests/helpers/global-setup.ts'],
+          testTimeout: 90_000,
+          hookTimeout: 120_000,
+          fileParallelism: false,
+          sequence: { groupOrder: 3 },
+        },
+      },
     ],
   },
 });

@@ -9,6 +9,8 @@ export type EmbeddedBroker = {
   broker: Aedes;
   port: number;
   publish(topic: string, payload: Buffer, qos: 0 | 1): Promise<void>;
+  /** Drop a board's connection now (its secret was rotated or it was retired); false when it is not connected. */
+  disconnect(clientId: string): boolean;
   close(): Promise<void>;
 };
 
@@ -89,7 +91,7 @@ export async function startEmbeddedBroker(opts: {
     // A board that reconnected already (session take-over) is not offline.
     const current = clients[client.id];
     if (current && current !== client) return;
-    if (serialSchema.safeParse(client.id).success) void sink.offline(client.id, 'disconnect', new Date()).catch(() => {});
+    if (serialSchema.safeParse(client.id).success) void sink.offline(client.id, 'disconnect', new Date(handler.now())).catch(() => {});
   });
   broker.on('clientError', (client, err) => log.debug({ serial: client.id, err: err.message }, 'board connection error'));
   // Small PUBACK/SUBACK replies must not wait for Nagle's algorithm.
@@ -109,6 +111,12 @@ export async function startEmbeddedBroker(opts: {
       new Promise((ok, fail) =>
         broker.publish({ cmd: 'publish', topic, payload, qos, retain: false, dup: false } as never, (e?: Error | null) => (e ? fail(e) : ok())),
       ),
+    disconnect: (clientId) => {
+      const c = clients[clientId];
+      if (!c) return false;
+      c.close();
+      return true;
+    },
     close: async () => {
       await new Promise<void>((ok) => {
         for (const c of Object.values(clients)) c?.close();

@@ -26,11 +26,23 @@ export class ProtocolHandler {
   constructor(
     private sink: DeviceSink,
     private log: Logger,
+    /** Server time (injected, so tests on a virtual clock stay consistent). */
+    readonly now: () => number = Date.now,
   ) {}
 
+  /**
+   * Boards whose last message could not be stored: everything after it is refused too, until the
+   * board reconnects and sends again in order (so nothing stored ever runs ahead of a gap).
+   */
+  private poisoned = new Set<string>();
+
+  /**
+   * A board (re)connected, with its highest stored sequence number from the database. Messages
+   * still being stored from its previous connection count too (they commit, or poison the board).
+   */
   setLastSeq(serial: string, seq: number) {
-    const cur = this.lastSeq.get(serial);
-    if (cur === undefined || seq > cur) this.lastSeq.set(serial, seq);
+    this.poisoned.delete(serial);
+    this.lastSeq.set(serial, Math.max(seq, this.lastSeq.get(serial) ?? 0));
   }
 
   drop(serial: string, reason: DropReason, detail?: string): Outcome {
@@ -40,7 +52,7 @@ export class ProtocolHandler {
   }
 
   /** Handle one message a board published. `fromSerial` is the authenticated sender, when known. */
-  async handle(fromSerial: string | null, topic: string, payload: Buffer, receivedAt = new Date()): Promise<Outcome> {
+  async handle(fromSerial: string | null, topic: string, payload: Buffer, receivedAt = new Date(this.now())): Promise<Outcome> {
     this.stats.received++;
     const t = parseTopic(topic);
     const who = fromSerial ?? t?.serial ?? 'unknown';
@@ -71,14 +83,19 @@ export class ProtocolHandler {
       }
       this.lastSeq.set(serial, msg.seq);
     }
+    if (this.poisoned.has(serial)) throw new Error('an earlier message from this board was not stored; waiting for it again');
     const prev = this.chains.get(serial) ?? Promise.resolve();
-    const mine = prev.catch(() => {}).then(() => this.deliver(serial, t.kind, parsed.data, receivedAt));
+    const mine = prev.catch(() => {}).then(() => {
+      if (this.poisoned.has(serial)) throw new Error('an earlier message from this board was not stored');
+      return this.deliver(serial, t.kind, parsed.data, receivedAt);
+    });
     this.chains.set(serial, mine);
     try {
       await mine;
     } catch (e) {
-      // Not stored: forget the sequence number so the board's resend is accepted.
-      if (typeof msg.seq === 'number' && this.lastSeq.get(serial) === msg.seq) this.lastSeq.set(serial, msg.seq - 1);
+      // Not stored: refuse what follows, and accept this message again when the board resends it.
+      this.poisoned.add(serial);
+      if (typeof msg.seq === 'number') this.lastSeq.set(serial, Math.min(this.lastSeq.get(serial) ?? msg.seq, msg.seq - 1));
       throw e;
     } finally {
       if (this.chains.get(serial) === mine) this.chains.delete(serial);

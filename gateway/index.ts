@@ -16,6 +16,7 @@ export type GatewayOptions = {
   sink: DeviceSink;
   log: Logger;
   driver?: BoardDriver;
+  now?: () => number;
 };
 
 export type Gateway = {
@@ -24,25 +25,39 @@ export type Gateway = {
   stats: GatewayStats;
   handler: ProtocolHandler;
   send(serial: string, cmd: Command): Promise<void>;
+  /** Stop and start the embedded broker on the same port (fault tests; boards reconnect by themselves). */
+  restartBroker(): Promise<void>;
+  /** Drop a board's live session (embedded broker only; with an external broker the board keeps it until it reconnects). */
+  disconnect(serial: string): boolean;
   close(): Promise<void>;
 };
 
 /** The only code that knows MQTT topics and payloads. */
 export async function startGateway(opts: GatewayOptions): Promise<Gateway> {
   const driver = opts.driver ?? runnelV1Driver;
-  const handler = new ProtocolHandler(opts.sink, opts.log.child({ part: 'gateway' }));
+  const handler = new ProtocolHandler(opts.sink, opts.log.child({ part: 'gateway' }), opts.now);
   let publish: (topic: string, payload: Buffer, qos: 0 | 1) => Promise<void>;
   let close: () => Promise<void>;
   let port: number | null = null;
+  let disconnect = (_serial: string): boolean => false;
+  let restart = async (): Promise<void> => {
+    throw new Error('the broker is external; restart it where it runs');
+  };
   if (opts.external) {
     const link = await connectExternalBroker({ ...opts.external, handler, log: opts.log });
     publish = link.publish;
     close = link.close;
   } else {
-    const b = await startEmbeddedBroker({ ...(opts.embedded ?? { host: '127.0.0.1', port: 1883 }), handler, sink: opts.sink, log: opts.log });
-    publish = b.publish;
-    close = b.close;
+    const where = opts.embedded ?? { host: '127.0.0.1', port: 1883 };
+    let b = await startEmbeddedBroker({ ...where, handler, sink: opts.sink, log: opts.log });
     port = b.port;
+    publish = (t, p, q) => b.publish(t, p, q);
+    close = () => b.close();
+    disconnect = (serial) => b.disconnect(serial);
+    restart = async () => {
+      await b.close();
+      b = await startEmbeddedBroker({ host: where.host, port: port!, handler, sink: opts.sink, log: opts.log });
+    };
   }
   return {
     port,
@@ -52,6 +67,8 @@ export async function startGateway(opts: GatewayOptions): Promise<Gateway> {
       handler.stats.commandsSent++;
       await publish(driver.commandTopic(serial), driver.encodeCommand(cmd), 1);
     },
-    close,
+    restartBroker: () => restart(),
+    disconnect: (serial) => disconnect(serial),
+    close: () => close(),
   };
 }

@@ -29,6 +29,10 @@ const configSchema = z
     COMMAND_RETRIES: z.coerce.number().int().min(0).max(10).default(2),
     /** Added to a run's length to give the board's own failsafe timer. */
     FAILSAFE_MARGIN_SECONDS: z.coerce.number().int().min(1).max(600).default(30),
+    /** Share live events with other instances through PostgreSQL LISTEN/NOTIFY (several instances). */
+    LIVE_RELAY: bool.default(false),
+    MQTT_USERNAME: z.string().optional(),
+    MQTT_PASSWORD: z.string().optional(),
     /** Take part in the election of the one instance that dispatches schedules. */
     SCHEDULER: bool.default(true),
     SCHEDULER_TICK_MS: z.coerce.number().int().min(10).max(600_000).default(1000),
@@ -88,6 +92,21 @@ const configSchema = z
     ALERT_FLOW_SETTLE_SECONDS: z.coerce.number().min(0).max(600).default(30),
     ALERT_LOW_VOLTAGE_V: z.coerce.number().min(0).max(60).default(21.5),
     ALERT_VOLTAGE_SECONDS: z.coerce.number().min(0).max(3600).default(120),
+    // --- running the firm (issue 7) ---
+    /** Where site plans and service photos are kept (created when missing; git-ignored under .data/). */
+    UPLOAD_DIR: z.string().min(1).default('.data/uploads'),
+    INVITE_TTL_HOURS: z.coerce.number().min(1).max(24 * 30).default(72),
+    RESET_TTL_MINUTES: z.coerce.number().min(5).max(24 * 60).default(60),
+    /** Password-reset requests per address and e-mail in 15 minutes. */
+    RESET_RATE_LIMIT: z.coerce.number().int().positive().default(5),
+    /** Uses of one-time links (accept an invitation, confirm a reset) and token creation per address in 15 minutes. */
+    TOKEN_RATE_LIMIT: z.coerce.number().int().positive().default(30),
+    /** What boards should connect to, printed on setup sheets; default mqtt://MQTT_HOST:<broker port>. */
+    MQTT_PUBLIC_URL: z.string().regex(/^mqtts?:\/\/[^\s]+$/, 'MQTT_PUBLIC_URL must look like mqtt://host:1883').optional(),
+    WEBHOOK_MAX_ATTEMPTS: z.coerce.number().int().min(1).max(20).default(6),
+    /** First retry after this; each further retry waits twice as long. */
+    WEBHOOK_RETRY_BASE_MS: z.coerce.number().int().min(10).max(3_600_000).default(10_000),
+    WEBHOOK_TIMEOUT_MS: z.coerce.number().int().min(100).max(60_000).default(5000),
   })
   .superRefine((c, ctx) => {
     if (c.NODE_ENV === 'production' && !c.SESSION_SECRET) {

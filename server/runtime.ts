@@ -14,6 +14,7 @@ import { attachLiveHub, type LiveHub } from './live/hub';
 import { ValveDispatcher } from './services/dispatcher';
 import type { Services } from './services/registry';
 import { Scheduler } from './scheduler/scheduler';
+import { startWatch } from './alerts/watch'; // issue 6: rollups, alerts, mail
 
 export type Runtime = {
   config: Config;
@@ -54,6 +55,11 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
   }
 
   const bus = new LiveBus();
+  if (config.LIVE_RELAY) {
+    const { startPgLiveRelay } = await import('./live/pg-relay');
+    const relay = await startPgLiveRelay({ databaseUrl: config.DATABASE_URL, pool, bus, log: log.child({ part: 'relay' }) });
+    extras.push({ name: 'live-relay', close: () => relay.close() });
+  }
   const fleet = new Fleet(db);
   await fleet.load();
   const writer = new ReadingWriter(pool, log.child({ part: 'ingest' }), clock, {
@@ -64,7 +70,9 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
   const sink = createDeviceSink({ db, fleet, writer, bus, clock, log: log.child({ part: 'ingest' }) });
   const gateway = await startGateway({
     embedded: config.MQTT_URL ? undefined : { host: config.MQTT_HOST, port: config.MQTT_PORT },
-    external: config.MQTT_URL ? { url: config.MQTT_URL, clientId: `runnel-server-${process.pid}` } : undefined,
+    external: config.MQTT_URL
+      ? { url: config.MQTT_URL, username: config.MQTT_USERNAME, password: config.MQTT_PASSWORD, clientId: `runnel-server-${process.pid}-${Math.random().toString(36).slice(2, 8)}` }
+      : undefined,
     sink,
     log,
     now: () => clock.now(),
@@ -98,6 +106,10 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
   const url = `http://${config.HOST}:${port}`;
   const mqttUrl = gateway.port !== null ? `mqtt://${config.MQTT_HOST}:${gateway.port}` : (config.MQTT_URL ?? null);
 
+  // --- issue 6: water-use rollups, the alert engine, mail and the local fake SMTP server ---
+  const watch = await startWatch({ config, db, bus, fleet, dispatcher, clock, log, url, services });
+  extras.push({ name: 'watch', close: () => watch.close() });
+  // --- end issue 6 ---
   if (config.SCHEDULER) scheduler.start();
   const sweep = setInterval(() => void sink.sweepSilent(config.OFFLINE_AFTER_SECONDS * 1000).catch(() => {}), 5000);
   sweep.unref();

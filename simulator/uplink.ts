@@ -73,6 +73,8 @@ export class Uplink {
       keepalive: o.keepaliveSeconds,
       reconnectPeriod: o.reconnectPeriodMs,
       connectTimeout: 15_000,
+      // a real board keeps trying when the broker refuses it for a while (server unavailable)
+      reconnectOnConnackError: true,
       queueQoSZero: false,
       will: { topic: topicFor(b.serial, 'status'), payload: Buffer.from(OFFLINE_WILL), qos: 1, retain: true },
     });

@@ -130,21 +130,32 @@ export class ReadingWriter {
     const client = await this.pool.connect();
     try {
       await client.query('begin');
-      const lines = batch.flatMap((p) => p.rows.map(toCopyLine));
-      const stream = client.query(
-        copyFrom(
-          'copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin',
-        ),
-      );
-      await pipeline(Readable.from(chunk(lines, 500)), stream);
+      // A retry after a connection lost during COMMIT must not store a batch twice: a message whose
+      // sequence number the board's row already shows was committed (each board's messages are
+      // stored strictly in order, and last_seq moves in the same transaction as its rows).
+      const ids = [...new Set(batch.map((p) => p.controllerId))];
+      const stored = await client.query('select id, last_seq from controllers where id = any($1::int[]) for update', [ids]);
+      const last = new Map<number, number>(stored.rows.map((r: { id: number; last_seq: string }) => [r.id, Number(r.last_seq)]));
+      const todo = batch.filter((p) => p.seq > (last.get(p.controllerId) ?? 0));
+      const lines = todo.flatMap((p) => p.rows.map(toCopyLine));
+      if (lines.length) {
+        const stream = client.query(
+          copyFrom(
+            'copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin',
+          ),
+        );
+        await pipeline(Readable.from(chunk(lines, 500)), stream);
+      }
       const maxSeq = new Map<number, number>();
-      for (const p of batch) maxSeq.set(p.controllerId, Math.max(maxSeq.get(p.controllerId) ?? 0, p.seq));
-      const ids = [...maxSeq.keys()];
-      await client.query(
-        `update controllers c set last_seq = greatest(c.last_seq, v.seq), last_seen_at = now()
-           from unnest($1::int[], $2::bigint[]) as v(id, seq) where c.id = v.id`,
-        [ids, ids.map((i) => maxSeq.get(i))],
-      );
+      for (const p of todo) maxSeq.set(p.controllerId, Math.max(maxSeq.get(p.controllerId) ?? 0, p.seq));
+      const upd = [...maxSeq.keys()];
+      if (upd.length) {
+        await client.query(
+          `update controllers c set last_seq = greatest(c.last_seq, v.seq), last_seen_at = now()
+             from unnest($1::int[], $2::bigint[]) as v(id, seq) where c.id = v.id`,
+          [upd, upd.map((i) => maxSeq.get(i))],
+        );
+      }
       await client.query('commit');
     } catch (e) {
       await client.query('rollback').catch(() => {});

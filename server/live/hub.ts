@@ -110,7 +110,32 @@ export function attachLiveHub(o: HubOptions): LiveHub {
     ws.on('error', () => ws.terminate());
   }
 
-  const unsubscribe = o.bus.subscribe((e: LiveEvent) => {
+  /** A person disabled or signed out everywhere: close their sockets now; changed: reload what they may see. */
+  const onPersonEvent = (e: LiveEvent): boolean => {
+    const userId = (e as { userId?: unknown }).userId;
+    if (typeof userId !== 'number') return false;
+    if (e.type === 'user-disabled' || e.type === 'user-signed-out') {
+      for (const c of conns) if (c.actor.userId === userId) c.ws.close(4401, 'signed out');
+      return true;
+    }
+    if (e.type === 'user-changed') {
+      for (const c of conns) {
+        if (c.actor.userId !== userId) continue;
+        void loadActor(o.db, userId)
+          .then((a) => {
+            if (!a) return c.ws.close(4401, 'signed out');
+            c.actor = a;
+            return snapshot(c);
+          })
+          .catch(() => {});
+      }
+      return true;
+    }
+    return false;
+  };
+
+  const unsubscribe = o.bus.subscribeAll((e: LiveEvent) => {
+    if (e.type.startsWith('user-') && onPersonEvent(e)) return;
     const text = JSON.stringify(e);
     for (const c of conns) {
       if (!canSeeSite(c.actor, e.siteId)) continue;
