@@ -11,7 +11,7 @@ import { fileURLToPath } from 'node:url';
 import type { Config } from './config';
 import type { Db } from './db/client';
 import { AppError, errorHandler } from './errors';
-import { attachActor } from './middleware/auth';
+import { attachActor, sameOriginWrites } from './middleware/auth';
 import { apiRouters } from './routes/index';
 import type { Clock } from './clock';
 import type { Services } from './services/registry';
@@ -65,7 +65,8 @@ export function createApp(deps: AppDeps): BuiltApp {
   app.use(
     pinoHttp({
       logger: log,
-      redact: ['req.headers.cookie', 'req.headers.authorization', 'res.headers["set-cookie"]'],
+      // No secret, token or session id in a log line: one-time links travel in Referer, tokens in Authorization.
+      redact: ['req.headers.cookie', 'req.headers.authorization', 'req.headers.referer', 'res.headers["set-cookie"]', 'req.body', 'req.query.token'],
       autoLogging: { ignore: (req) => !req.url?.startsWith('/api') },
     }),
   );
@@ -77,7 +78,7 @@ export function createApp(deps: AppDeps): BuiltApp {
     store: new PgStore({ pool, tableName: 'sessions', createTableIfMissing: false, pruneSessionInterval: 60 * 15 }),
     resave: false,
     saveUninitialized: false,
-    rolling: true,
+    rolling: false,
     proxy: config.TRUST_PROXY,
     cookie: {
       httpOnly: true,
@@ -88,6 +89,7 @@ export function createApp(deps: AppDeps): BuiltApp {
   });
 
   const api = express.Router();
+  api.use(sameOriginWrites({ publicUrl: config.PUBLIC_URL, trustProxy: config.TRUST_PROXY }));
   api.use(express.json({ limit: config.JSON_LIMIT }));
   api.use(sessionMiddleware);
   api.use(attachActor(db));
