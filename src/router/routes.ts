@@ -59,6 +59,27 @@ export const routes: RouteRecordRaw[] = [
         props: (r) => ({ id: Number(r.params.id) }),
         meta: { title: 'Watering need' },
       },
+      {
+        path: 'sites/:id(\\d+)/programs',
+        name: 'site-programs',
+        component: () => import('../pages/ProgramsPage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Programs' },
+      },
+      {
+        path: 'sites/:id(\\d+)/schedule',
+        name: 'site-schedule',
+        component: () => import('../pages/SchedulePage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Schedule' },
+      },
+      {
+        path: 'sites/:id(\\d+)/walk',
+        name: 'site-walk',
+        component: () => import('../pages/WalkPage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Walk test', roles: ['technician', 'manager', 'admin'] },
+      },
       { path: 'calculator', name: 'calculator', component: () => import('../pages/CalculatorPage.vue'), meta: { title: 'Field calculator' } },
       // Programs, History, Alerts, Calculator … are added here with their pages (and in layouts/nav.ts).
       { path: ':rest(.*)*', name: 'not-found', component: () => import('../pages/NotFoundPage.vue'), meta: { title: 'Not found' } },
