@@ -60,5 +60,7 @@ if (only.has('scale')) {
   }
   save();
 }
-console.log(`written ${file}`);
+const { writePerformanceDoc } = await import('./report');
+writePerformanceDoc(file);
+console.log(`written ${file} and docs/performance.md`);
 process.exit(0);

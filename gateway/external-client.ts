@@ -25,33 +25,46 @@ export async function connectExternalBroker(opts: {
 }): Promise<ExternalLink> {
   const { handler, log } = opts;
   const share = opts.shareGroup ?? 'runnel';
-  const client = await mqtt.connectAsync(opts.url, {
+  const client: mqtt.MqttClient = await mqtt.connectAsync(opts.url, {
     clientId: opts.clientId,
     username: opts.username,
     password: opts.password,
     clean: false,
     reconnectPeriod: 1000,
+    // MQTT 5: mqtt.js lets us hold each PUBACK (customHandleAcks) only on protocol version 5
+    protocolVersion: 5,
+    properties: { sessionExpiryInterval: 3600 },
     customHandleAcks: (topic, payload, _packet, done) => {
       handler
         .handle(null, topic, Buffer.from(payload))
         .then(() => done(0))
         .catch((err) => {
-          log.error({ err, topic }, 'board message not stored');
-          done(0x80);
+          // Not stored: no PUBACK. Dropping the connection makes the broker deliver it again.
+          log.error({ err: (err as Error).message, topic }, 'board message not stored; reconnecting for a redelivery');
+          client.stream.destroy();
         });
     },
   });
   client.on('error', (err) => log.warn({ err: err.message }, 'external broker error'));
-  await client.subscribeAsync(
-    ['ack', 'telemetry', 'event'].map((k) => `$share/${share}/${TOPIC_ROOT}/+/${k}`).concat([`${TOPIC_ROOT}/+/state`, `${TOPIC_ROOT}/+/status`]),
-    { qos: 1 },
-  );
+  const topics = ['ack', 'telemetry', 'event'].map((k) => `$share/${share}/${TOPIC_ROOT}/+/${k}`).concat([`${TOPIC_ROOT}/+/state`, `${TOPIC_ROOT}/+/status`]);
+  await client.subscribeAsync(topics, { qos: 1 });
+  // Subscribe again on every reconnect, even when the broker says it kept our session: a broker
+  // restored from its persistence file does not always bring shared subscriptions back.
+  client.on('connect', () => {
+    client.subscribe(topics, { qos: 1 }, (err) => err && log.warn({ err: err.message }, 'resubscribe failed'));
+  });
   return {
     publish: async (topic, payload, qos) => {
       await client.publishAsync(topic, payload, { qos });
     },
     close: async () => {
-      await client.endAsync();
+      // Leave the share group first, or the broker keeps queueing this instance's share of the
+      // boards' messages for a session that is going away. (After a crash the queue waits for
+      // the instance to come back under the same client id: give each instance a stable one.)
+      await client.unsubscribeAsync(topics).catch(() => {});
+      // finish storing what was received, so its PUBACKs go out before the session ends
+      await Promise.race([handler.idle(), new Promise((r) => setTimeout(r, 10_000))]);
+      await client.endAsync(false, { properties: { sessionExpiryInterval: 0 } } as never).catch(() => client.end(true));
     },
   };
 }

@@ -28,6 +28,12 @@ export class ProtocolHandler {
     private log: Logger,
     /** Server time (injected, so tests on a virtual clock stay consistent). */
     readonly now: () => number = Date.now,
+    /**
+     * Drop a sequence number at or below the highest seen. Right for one instance, which sees all
+     * of a board's messages in order; with a shared subscription each instance sees only some, out
+     * of order after a redelivery, so the database de-duplicates instead.
+     */
+    private readonly dedupeBySeq = true,
   ) {}
 
   /**
@@ -51,6 +57,11 @@ export class ProtocolHandler {
     return { ok: false, reason };
   }
 
+  /** Resolves when every message being stored has been stored (or refused). */
+  async idle(): Promise<void> {
+    while (this.chains.size) await Promise.allSettled([...this.chains.values()]);
+  }
+
   /** Handle one message a board published. `fromSerial` is the authenticated sender, when known. */
   async handle(fromSerial: string | null, topic: string, payload: Buffer, receivedAt = new Date(this.now())): Promise<Outcome> {
     this.stats.received++;
@@ -72,7 +83,7 @@ export class ProtocolHandler {
     const msg = parsed.data as { seq?: number };
     const serial = t.serial;
     // Retained state and status are snapshots: always applied, never counted as duplicates.
-    if (typeof msg.seq === 'number' && t.kind !== 'state') {
+    if (this.dedupeBySeq && typeof msg.seq === 'number' && t.kind !== 'state') {
       const last = this.lastSeq.get(serial) ?? 0;
       if (msg.seq <= last) return this.drop(serial, 'duplicate', `seq ${msg.seq} ≤ ${last}`);
       // A board counts from its power-on clock, so a big jump is a restart, not lost messages.

@@ -35,7 +35,7 @@ export type Gateway = {
 /** The only code that knows MQTT topics and payloads. */
 export async function startGateway(opts: GatewayOptions): Promise<Gateway> {
   const driver = opts.driver ?? runnelV1Driver;
-  const handler = new ProtocolHandler(opts.sink, opts.log.child({ part: 'gateway' }), opts.now);
+  const handler = new ProtocolHandler(opts.sink, opts.log.child({ part: 'gateway' }), opts.now, !opts.external);
   let publish: (topic: string, payload: Buffer, qos: 0 | 1) => Promise<void>;
   let close: () => Promise<void>;
   let port: number | null = null;

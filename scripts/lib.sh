@@ -49,6 +49,13 @@ ensure_postgres_binaries() {
   fi
 }
 
+ensure_mosquitto() {
+  if [ ! -x /usr/sbin/mosquitto ]; then apt_install mosquitto; fi
+  # the package starts a system broker on 1883; the tests run their own on ports of their own
+  as_root systemctl stop mosquitto >/dev/null 2>&1 || true
+  as_root pkill -x -f '/usr/sbin/mosquitto -c /etc/mosquitto/mosquitto.conf' >/dev/null 2>&1 || true
+}
+
 ensure_chromium() {
   if [ ! -x /usr/bin/chromium ]; then apt_install chromium; fi
 }

@@ -4,6 +4,7 @@ source "$(dirname "$0")/lib.sh"
 
 ensure_node_modules
 ensure_chromium
+ensure_mosquitto
 if [ -z "${TEST_ADMIN_DATABASE_URL:-}" ]; then
   ensure_postgres_binaries
   pg_up test "${RUNNEL_TEST_PG_PORT:-54339}"

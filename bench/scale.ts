@@ -1,0 +1,146 @@
+import { spawn, type ChildProcess } from 'node:child_process';
+import fs from 'node:fs';
+import net from 'node:net';
+import os from 'node:os';
+import path from 'node:path';
+import readline from 'node:readline';
+import { sql } from 'drizzle-orm';
+import WebSocket from 'ws';
+import { SERVER_MQTT_USER } from '../server/broker/mosquitto';
+import { startMosquitto } from '../tests/helpers/mosquitto';
+import { benchDb, percentile, round, sleep } from './common';
+import { BENCH_PASSWORD, buildFleet } from './fleet-world';
+
+export type ScaleResult = { controllers: number; instances: 2; readingsPerSecond: number; lost: number; valveEventP99Ms: number; rssMbPerInstance: number[] };
+
+async function freePort(): Promise<number> {
+  return new Promise((resolve) => {
+    const s = net.createServer();
+    s.listen(0, '127.0.0.1', () => {
+      const p = (s.address() as net.AddressInfo).port;
+      s.close(() => resolve(p));
+    });
+  });
+}
+
+const rssMb = (pid: number) => {
+  const m = /VmHWM:\s+(\d+) kB/.exec(fs.readFileSync(`/proc/${pid}/status`, 'utf8'));
+  return m ? Math.round(Number(m[1]) / 1024) : NaN;
+};
+
+async function waitHealthy(url: string, ms = 60_000) {
+  const end = Date.now() + ms;
+  while (Date.now() < end) {
+    try {
+      if ((await fetch(`${url}/api/health`)).ok) return;
+    } catch {
+      /* starting */
+    }
+    await sleep(200);
+  }
+  throw new Error(`${url} did not come up`);
+}
+
+/**
+ * N boards (own process) → Mosquitto → two Runnel instances (own processes) → one PostgreSQL.
+ * Readings persisted per second, lost readings, valve event p99 to a browser on the instance
+ * that did not send the command, and each instance's peak memory.
+ */
+export async function benchScaleOne(n: number, windowMs = 20_000): Promise<ScaleResult> {
+  const db = await benchDb(`scale${n}`);
+  const { boards, zoneIds } = await buildFleet(db, n);
+  const broker = await startMosquitto(boards);
+  const ports = [await freePort(), await freePort()];
+  const instances: ChildProcess[] = ports.map((port, i) =>
+    spawn(process.execPath, ['--import', 'tsx', 'server/index.ts'], {
+      stdio: ['ignore', 'ignore', 'inherit'],
+      env: {
+        ...process.env, NODE_ENV: 'test', RUNNEL_DEMO: '0', DATABASE_URL: db.url, PORT: String(port), HOST: '127.0.0.1',
+        MQTT_URL: broker.url, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, INSTANCE_ID: `bench-${i}`,
+        LIVE_RELAY: '1', SCHEDULER: '0', LOG_LEVEL: 'error', WEATHER_PORT: '0', LOGIN_RATE_LIMIT: '10000', OFFLINE_AFTER_SECONDS: '3600',
+        READING_FLUSH_MS: '200', READING_BATCH_ROWS: '10000',
+      },
+    }),
+  );
+  const urls = ports.map((p) => `http://127.0.0.1:${p}`);
+  await Promise.all(urls.map((u) => waitHealthy(u)));
+  const fleetFile = path.join(os.tmpdir(), `runnel-scale-fleet-${n}.json`);
+  fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
+  const perSecond = 5;
+  const sim = spawn(process.execPath, ['--import', 'tsx', 'bench/sim-child.ts', fleetFile, broker.url, String(1000 / perSecond), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
+  const lines = readline.createInterface({ input: sim.stdout! });
+  const seen: Record<string, unknown>[] = [];
+  lines.on('line', (l) => {
+    try {
+      seen.push(JSON.parse(l));
+    } catch {
+      /* not ours */
+    }
+  });
+  const waitFor = async (key: string, ms = 300_000) => {
+    const end = Date.now() + ms;
+    while (Date.now() < end) {
+      const hit = seen.find((m) => key in m);
+      if (hit) return hit;
+      await sleep(100);
+    }
+    throw new Error(`simulator did not report ${key}`);
+  };
+  await waitFor('ready');
+  const signIn = async (u: string) => {
+    const r = await fetch(`${u}/api/auth/sign-in`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email: 'bench@runnel.test', password: BENCH_PASSWORD }) });
+    return r.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
+  };
+  const [cookieA, cookieB] = [await signIn(urls[0]), await signIn(urls[1])];
+  const ws = new WebSocket(`${urls[1].replace('http', 'ws')}/ws`, { headers: { cookie: cookieB, origin: urls[1] } });
+  const lat: number[] = [];
+  let measuring = false;
+  ws.on('message', (d) => {
+    const t = Date.now();
+    const m = JSON.parse(String(d));
+    if (measuring && m.type === 'valve') lat.push(t - Date.parse(m.at));
+  });
+  await new Promise((r) => ws.once('open', r));
+  await sleep(5000);
+  const count = async () => Number((await db.db.execute(sql`select count(*) as n from readings`)).rows[0].n);
+  measuring = true;
+  const c0 = await count();
+  const t0 = Date.now();
+  const timer = setInterval(() => {
+    const z = zoneIds[Math.floor(Math.random() * zoneIds.length)];
+    void fetch(`${urls[0]}/api/zones/${z}/start`, { method: 'POST', headers: { 'content-type': 'application/json', cookie: cookieA, origin: urls[0] }, body: JSON.stringify({ minutes: 1 }) }).catch(() => {});
+  }, 200);
+  await sleep(windowMs);
+  clearInterval(timer);
+  const c1 = await count();
+  const t1 = Date.now();
+  measuring = false;
+  const rss = instances.map((p) => rssMb(p.pid!));
+  sim.kill('SIGINT');
+  const totals = (await waitFor('done')) as { sent: number };
+  await sleep(3000);
+  const stored = await count();
+  ws.close();
+  for (const p of instances) p.kill('SIGTERM');
+  await Promise.all(instances.map((p) => new Promise((r) => (p.exitCode !== null ? r(null) : p.once('exit', r)))));
+  await broker.stop();
+  await db.drop();
+  fs.rmSync(fleetFile, { force: true });
+  return {
+    controllers: n, instances: 2,
+    readingsPerSecond: Math.round((c1 - c0) / ((t1 - t0) / 1000)),
+    lost: Math.max(0, totals.sent - stored),
+    valveEventP99Ms: round(percentile(lat, 99)),
+    rssMbPerInstance: rss,
+  };
+}
+
+export async function benchScale(): Promise<ScaleResult[]> {
+  const out: ScaleResult[] = [];
+  for (const n of (process.env.BENCH_SCALE_BOARDS ?? '100,1000,5000').split(',').map(Number)) {
+    const r = await benchScaleOne(n);
+    console.log(`scale ${n} boards / 2 instances: ${r.readingsPerSecond} readings/s, lost ${r.lost}, valve p99 ${r.valveEventP99Ms} ms, rss ${r.rssMbPerInstance.join(' / ')} MB`);
+    out.push(r);
+  }
+  return out;
+}

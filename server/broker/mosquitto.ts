@@ -1,0 +1,37 @@
+import { pbkdf2Sync, randomBytes } from 'node:crypto';
+import fs from 'node:fs';
+import path from 'node:path';
+import { fileURLToPath } from 'node:url';
+
+/**
+ * Runnel with an external Mosquitto broker: Mosquitto checks board credentials and topic ACLs
+ * itself, from files Runnel generates. Passwords use Mosquitto 2's own format, `$7$` =
+ * PBKDF2-SHA512, 101 iterations, 12-byte salt (what mosquitto_passwd writes). The secrets are
+ * 24 random bytes, so the low iteration count does not make them guessable.
+ */
+export function mosquittoHash(secret: string, salt = randomBytes(12)): string {
+  const hash = pbkdf2Sync(secret, salt, 101, 64, 'sha512');
+  return `$7$101$${salt.toString('base64')}$${hash.toString('base64')}`;
+}
+
+export function verifyMosquittoHash(secret: string, stored: string): boolean {
+  const [, seven, it, salt, hash] = stored.split('$');
+  if (seven !== '7') return false;
+  return pbkdf2Sync(secret, Buffer.from(salt, 'base64'), Number(it), 64, 'sha512').toString('base64') === hash;
+}
+
+export const SERVER_MQTT_USER = 'runnel-server';
+
+const here = path.dirname(fileURLToPath(import.meta.url));
+export const MOSQUITTO_TEMPLATE_DIR = path.resolve(here, '../../deploy/mosquitto');
+
+/** Write passwords, ACL and config into `dir`; returns the config file's path. */
+export function writeMosquittoFiles(dir: string, port: number, entries: { user: string; hash: string }[]): string {
+  fs.mkdirSync(path.join(dir, 'data'), { recursive: true });
+  fs.writeFileSync(path.join(dir, 'passwords'), entries.map((e) => `${e.user}:${e.hash}`).join('\n') + '\n', { mode: 0o640 });
+  fs.copyFileSync(path.join(MOSQUITTO_TEMPLATE_DIR, 'runnel.acl'), path.join(dir, 'runnel.acl'));
+  const conf = fs.readFileSync(path.join(MOSQUITTO_TEMPLATE_DIR, 'runnel.conf.template'), 'utf8').replaceAll('{{DIR}}', dir).replaceAll('{{PORT}}', String(port));
+  const file = path.join(dir, 'runnel.conf');
+  fs.writeFileSync(file, conf);
+  return file;
+}
