@@ -72,7 +72,7 @@ async function settle(page: Page): Promise<void> {
 async function shot(page: Page, name: string): Promise<void> {
   const style = await page.addStyleTag({ content: '.q-notifications { visibility: hidden !important; }' });
   await screenshot(page, name);
-  await style.evaluate((e) => e.remove());
+  await style.evaluate((e) => (e as unknown as { remove: () => void }).remove());
 }
 
 /** A full-screen dialog is as tall as the screen: picture the screen, not the page behind it. */
