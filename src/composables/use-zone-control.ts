@@ -1,4 +1,4 @@
-import { Notify } from 'quasar';
+import { Dialog, Notify } from 'quasar';
 import { api, ApiError } from '../services/api-client';
 import { useLiveStore } from '../stores/live';
 import { useSessionStore } from '../stores/session';
@@ -17,9 +17,24 @@ export function useZoneControl() {
   const live = useLiveStore();
   const session = useSessionStore();
 
-  async function start(zone: Pick<Zone, 'id' | 'name' | 'siteId' | 'controllerId'>, minutes: number): Promise<StartResponse | null> {
+  /** During a rain hold a technician may still test a valve, saying so explicitly (the server audits it). */
+  function confirmOverride(zone: Pick<Zone, 'name'>, reason: string): Promise<boolean> {
+    return new Promise((resolve) => {
+      Dialog.create({
+        title: 'Watering is on hold',
+        message: `${reason}. Open ${zone.name} anyway to test the valve? This is recorded in the audit log.`,
+        ok: { label: 'Test the valve', color: 'primary', 'data-test': 'hold-override-ok' },
+        cancel: { label: 'Leave it closed', flat: true },
+        persistent: true,
+      })
+        .onOk(() => resolve(true))
+        .onCancel(() => resolve(false));
+    });
+  }
+
+  async function start(zone: Pick<Zone, 'id' | 'name' | 'siteId' | 'controllerId'>, minutes: number, overrideHold = false): Promise<StartResponse | null> {
     try {
-      const r = await api.post<StartResponse>(`/zones/${zone.id}/start`, { minutes }, { quiet: true });
+      const r = await api.post<StartResponse>(`/zones/${zone.id}/start`, overrideHold ? { minutes, overrideHold } : { minutes }, { quiet: true });
       live.noteStart(r, zone.siteId, zone.controllerId, zone.name, session.me?.id ?? null);
       if (r.state === 'queued') {
         Notify.create({
@@ -30,6 +45,11 @@ export function useZoneControl() {
       }
       return r;
     } catch (e) {
+      if (e instanceof ApiError && e.code === 'rain_hold' && session.me?.role === 'technician' && !overrideHold) {
+        const hold = (e.details as { hold?: { reason?: string } } | undefined)?.hold?.reason ?? 'Watering is held';
+        if (await confirmOverride(zone, hold)) return start(zone, minutes, true);
+        return null;
+      }
       if (e instanceof ApiError && e.code === 'controller_offline') {
         Notify.create({ type: 'warning', icon: 'wifi_off', timeout: 8000, message: `${zone.name} cannot start now`, caption: e.message });
       } else if (e instanceof ApiError && e.status !== 401) {
