@@ -73,12 +73,12 @@ describe('two instances on one PostgreSQL and one Mosquitto broker', () => {
     const other = leader === a ? b : a;
     expect(other.services.scheduler.isLeader).toBe(false);
     const [zoneA2] = await tdb.db.select({ id: zones.id }).from(zones).where(eq(zones.name, 'A2'));
-    // a program that starts at the next whole minute: zone A1 for 1 minute, then A2 for 1 minute
+    // a program that starts at the next whole minute: zone A1 for 15 s, then A2 for 15 s
     const start = DateTime.now().setZone('America/Denver').plus({ seconds: 5 }).startOf('minute').plus({ minutes: 1 });
     const startTimes = [start.toFormat('HH:mm')];
     const dayRule = { kind: 'weekdays' as const, weekdays: [0, 1, 2, 3, 4, 5, 6] };
     const [p] = await tdb.db.insert(programs).values({ siteId: f.siteA, name: 'Takeover', startTimes, dayRule, crons: programCrons({ startTimes, dayRule, activeFrom: null, activeTo: null }) }).returning();
-    await tdb.db.insert(programZones).values([{ programId: p.id, zoneId: f.zoneA, minutes: 1, position: 1, cycleSoak: 'off' }, { programId: p.id, zoneId: zoneA2.id, minutes: 1, position: 2, cycleSoak: 'off' }]);
+    await tdb.db.insert(programZones).values([{ programId: p.id, zoneId: f.zoneA, minutes: 0.25, position: 1, cycleSoak: 'off' }, { programId: p.id, zoneId: zoneA2.id, minutes: 0.25, position: 2, cycleSoak: 'off' }]);
     const board = sim.board('TEST-A-0001');
     await until(() => board.relayStates()[0].open, 90_000, 100);
     const closesAt = Date.parse(board.relayStates()[0].closesAt!);
