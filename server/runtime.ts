@@ -66,12 +66,13 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
     batchRows: config.READING_BATCH_ROWS,
     flushMs: config.READING_FLUSH_MS,
     maxBufferedRows: config.READING_BUFFER_ROWS,
+    shared: !!config.MQTT_URL,
   });
   const sink = createDeviceSink({ db, fleet, writer, bus, clock, log: log.child({ part: 'ingest' }) });
   const gateway = await startGateway({
     embedded: config.MQTT_URL ? undefined : { host: config.MQTT_HOST, port: config.MQTT_PORT },
     external: config.MQTT_URL
-      ? { url: config.MQTT_URL, username: config.MQTT_USERNAME, password: config.MQTT_PASSWORD, clientId: `runnel-server-${process.pid}-${Math.random().toString(36).slice(2, 8)}` }
+      ? { url: config.MQTT_URL, username: config.MQTT_USERNAME, password: config.MQTT_PASSWORD, clientId: `runnel-${config.INSTANCE_ID ?? `${process.pid}-${Math.random().toString(36).slice(2, 8)}`}` }
       : undefined,
     sink,
     log,

@@ -1,5 +1,6 @@
 import { sql, type SQL } from 'drizzle-orm';
 import { stringify } from 'csv-stringify';
+import { DateTime } from 'luxon';
 import type { Writable } from 'node:stream';
 import { finished } from 'node:stream/promises';
 import type { Db } from '../db/client';
@@ -7,7 +8,7 @@ import type { Actor } from '../services/actor';
 import { loadVisibleSite } from '../services/sites';
 import { loadVisibleZone } from '../services/zones';
 import type { RunHistoryFilter, RunHistoryPage, RunHistoryQuery, RunHistoryRow } from '../contracts/history';
-import { addDays, and, inList, iso, numOrNull, siteScope } from './sql';
+import { and, inList, iso, numOrNull, siteScope } from './sql';
 
 type Ctx = { db: Db; actor: Actor };
 
@@ -17,58 +18,104 @@ export const COUNT_CAP = 10_000;
 export const CSV_MAX_ROWS = 100_000;
 
 const isDate = (s: string) => /^\d{4}-\d{2}-\d{2}$/.test(s);
-const localDay = sql`(zr.planned_start at time zone s.timezone)::date`;
 
-/** The WHERE clause of a filter, after checking the person may see the site and zone named. */
-async function whereOf(ctx: Ctx, f: RunHistoryFilter): Promise<SQL> {
+/**
+ * How a filter is run. Zone runs are read site by site (a LATERAL join per site, through the
+ * (site, planned start) index), each site giving only its first `offset + limit` rows, then
+ * merged; a fleet-wide page costs one short index range scan per site. Dates are local days at
+ * each site, so sites are taken in groups of one timezone, where a local day is one constant
+ * UTC range the planner can estimate.
+ */
+type Plan = { f: RunHistoryFilter; sites: SQL; filters: SQL; zones: { tz: string | null; time: SQL }[] };
+
+async function planOf(ctx: Ctx, f: RunHistoryFilter): Promise<Plan> {
   if (f.siteId !== undefined) await loadVisibleSite(ctx, f.siteId);
   if (f.zoneId !== undefined) await loadVisibleZone(ctx, f.zoneId);
-  const parts: (SQL | undefined)[] = [siteScope(sql`zr.site_id`, ctx.actor)];
-  if (f.siteId !== undefined) parts.push(sql`zr.site_id = ${f.siteId}`);
-  if (f.zoneId !== undefined) parts.push(sql`zr.zone_id = ${f.zoneId}`);
-  if (f.programId === 'manual') parts.push(sql`r.program_id is null`);
-  else if (f.programId !== undefined) parts.push(sql`r.program_id = ${f.programId}`);
-  if (f.state) parts.push(inList(sql`zr.state::text`, f.state));
-  if (f.from) {
-    if (isDate(f.from)) {
-      // A coarse bound on the indexed column, then the exact local day at each run's site.
-      parts.push(sql`zr.planned_start >= ${new Date(`${addDays(f.from, -1)}T00:00:00Z`)}`, sql`${localDay} >= ${f.from}::date`);
-    } else parts.push(sql`zr.planned_start >= ${new Date(f.from)}`);
-  }
-  if (f.to) {
-    if (isDate(f.to)) {
-      parts.push(sql`zr.planned_start < ${new Date(`${addDays(f.to, 2)}T00:00:00Z`)}`, sql`${localDay} <= ${f.to}::date`);
-    } else parts.push(sql`zr.planned_start < ${new Date(f.to)}`);
-  }
-  return and(parts);
+  const sites = and([f.siteId !== undefined ? sql`s.id = ${f.siteId}` : undefined, siteScope(sql`s.id`, ctx.actor)]);
+  const filters = and([
+    f.zoneId !== undefined ? sql`zr.zone_id = ${f.zoneId}` : undefined,
+    f.programId === 'manual' ? sql`r.program_id is null` : f.programId !== undefined ? sql`r.program_id = ${f.programId}` : undefined,
+    f.state ? inList(sql`zr.state::text`, f.state) : undefined,
+  ]);
+  const byDate = (f.from && isDate(f.from)) || (f.to && isDate(f.to));
+  const tzs = byDate
+    ? (await ctx.db.execute<{ timezone: string }>(sql`select distinct s.timezone from sites s where ${sites} order by 1`)).rows.map((r) => r.timezone)
+    : [null];
+  const zones = tzs.map((tz) => {
+    const lo = f.from ? (isDate(f.from) ? DateTime.fromISO(f.from, { zone: tz! }).startOf('day').toJSDate() : new Date(f.from)) : null;
+    const hi = f.to ? (isDate(f.to) ? DateTime.fromISO(f.to, { zone: tz! }).startOf('day').plus({ days: 1 }).toJSDate() : new Date(f.to)) : null;
+    return { tz, time: and([lo ? sql`zr.planned_start >= ${lo}` : undefined, hi ? sql`zr.planned_start < ${hi}` : undefined]) };
+  });
+  return { f, sites, filters, zones };
 }
 
-const from = sql`from zone_runs zr
-  join runs r on r.id = zr.run_id
-  join zones z on z.id = zr.zone_id
-  join sites s on s.id = zr.site_id
-  left join programs p on p.id = r.program_id`;
+const needsRun = (f: RunHistoryFilter) => f.programId !== undefined;
 
-const SORTS: Record<RunHistoryFilter['sort'], SQL> = {
-  plannedStart: sql`zr.planned_start`,
-  zone: sql`z.name`,
-  site: sql`s.name`,
-  state: sql`zr.state::text`,
-  plannedMinutes: sql`zr.planned_minutes`,
-  actualMinutes: sql`coalesce(zr.actual_minutes, 0)`,
-  litres: sql`coalesce(zr.measured_litres, zr.estimated_litres, 0)`,
-};
+/** Sort key over the inner tables (zr, z, s) or over the merged rows (u). */
+function sortKey(f: RunHistoryFilter, side: 'inner' | 'merged'): SQL {
+  const inner = side === 'inner';
+  switch (f.sort) {
+    case 'plannedStart':
+      return inner ? sql`zr.planned_start` : sql`u.planned_start`;
+    case 'zone':
+      return inner ? sql`z.name` : sql`u.zone_name`;
+    case 'site':
+      return inner ? sql`s.name` : sql`u.site_name`;
+    case 'state':
+      return inner ? sql`zr.state::text` : sql`u.state::text`;
+    case 'plannedMinutes':
+      return inner ? sql`zr.planned_minutes` : sql`u.planned_minutes`;
+    case 'actualMinutes':
+      return inner ? sql`coalesce(zr.actual_minutes, 0)` : sql`coalesce(u.actual_minutes, 0)`;
+    case 'litres':
+      return inner ? sql`coalesce(zr.measured_litres, zr.estimated_litres, 0)` : sql`coalesce(u.measured_litres, u.estimated_litres, 0)`;
+  }
+}
 
-function orderBy(f: RunHistoryFilter): SQL {
+function orderBy(f: RunHistoryFilter, side: 'inner' | 'merged'): SQL {
   const dir = sql.raw(f.order === 'asc' ? 'asc' : 'desc');
-  return sql`order by ${SORTS[f.sort]} ${dir}, zr.planned_start ${dir}, zr.id ${dir}`;
+  const t = sql.raw(side === 'inner' ? 'zr' : 'u');
+  return sql`order by ${sortKey(f, side)} ${dir}, ${t}.planned_start ${dir}, ${t}.id ${dir}`;
 }
 
-const select = sql`select zr.id, zr.run_id, zr.site_id, s.name as site_name, zr.zone_id, z.name as zone_name, zr.controller_id,
-  r.program_id, p.name as program_name, r.kind as run_kind, zr.cycle,
-  to_char(${localDay}, 'YYYY-MM-DD') as local_date,
-  zr.planned_start, zr.planned_end, zr.planned_minutes, zr.actual_start, zr.actual_end, zr.actual_minutes,
-  zr.estimated_litres, zr.measured_litres, zr.state, zr.reason`;
+/** One timezone group: each of its sites' first `take` rows. */
+function branch(p: Plan, z: Plan['zones'][number], take: number): SQL {
+  const f = p.f;
+  return sql`select h.*, s.name as site_name, s.timezone from sites s
+    cross join lateral (
+      select zr.id, zr.run_id, zr.site_id, zr.zone_id, zr.controller_id, zr.cycle, zr.planned_start, zr.planned_end, zr.planned_minutes,
+        zr.actual_start, zr.actual_end, zr.actual_minutes, zr.estimated_litres, zr.measured_litres, zr.state, zr.reason
+        ${f.sort === 'zone' ? sql`, z.name as zone_name` : sql``}
+      from zone_runs zr
+        ${needsRun(f) ? sql`join runs r on r.id = zr.run_id` : sql``}
+        ${f.sort === 'zone' ? sql`join zones z on z.id = zr.zone_id` : sql``}
+      where zr.site_id = s.id and ${p.filters} and ${z.time}
+      ${orderBy(f, 'inner')} limit ${take}
+    ) h
+    where ${p.sites} ${z.tz === null ? sql`` : sql`and s.timezone = ${z.tz}`}`;
+}
+
+/** Rows offset … offset + limit, with their run, zone and program names joined on last. */
+function pageQuery(p: Plan, limit: number, offset: number): SQL {
+  const merged = sql.join(p.zones.map((z) => sql`(${branch(p, z, offset + limit)})`), sql` union all `);
+  return sql`select u.*, r.program_id, r.kind as run_kind, z.name as zone_name, p.name as program_name,
+      to_char((u.planned_start at time zone u.timezone)::date, 'YYYY-MM-DD') as local_date
+    from (select * from (${merged}) u ${orderBy(p.f, 'merged')} limit ${limit} offset ${offset}) u
+    join runs r on r.id = u.run_id
+    join zones z on z.id = u.zone_id
+    left join programs p on p.id = r.program_id
+    ${orderBy(p.f, 'merged')}`;
+}
+
+function countQuery(p: Plan): SQL {
+  const parts = p.zones.map(
+    (z) => sql`(select 1 from sites s cross join lateral (
+      select 1 from zone_runs zr ${needsRun(p.f) ? sql`join runs r on r.id = zr.run_id` : sql``}
+      where zr.site_id = s.id and ${p.filters} and ${z.time} limit ${COUNT_CAP + 1}
+    ) c where ${p.sites} ${z.tz === null ? sql`` : sql`and s.timezone = ${z.tz}`})`,
+  );
+  return sql`select count(*)::int as n from (select 1 from (${sql.join(parts, sql` union all `)}) c limit ${COUNT_CAP + 1}) t`;
+}
 
 type Raw = Record<string, unknown>;
 
@@ -88,11 +135,11 @@ function rowOf(r: Raw): RunHistoryRow {
     runKind: String(r.run_kind),
     cycle: Number(r.cycle),
     localDate: String(r.local_date),
-    plannedStart: iso(r.planned_start as Date)!,
-    plannedEnd: iso(r.planned_end as Date)!,
+    plannedStart: iso(r.planned_start as string)!,
+    plannedEnd: iso(r.planned_end as string)!,
     plannedMinutes: Number(r.planned_minutes),
-    actualStart: iso(r.actual_start as Date | null),
-    actualEnd: iso(r.actual_end as Date | null),
+    actualStart: iso(r.actual_start as string | null),
+    actualEnd: iso(r.actual_end as string | null),
     actualMinutes: numOrNull(r.actual_minutes),
     litres: measured ?? estimated ?? 0,
     litresBasis: measured !== null ? 'measured' : 'estimated',
@@ -105,11 +152,10 @@ function rowOf(r: Raw): RunHistoryRow {
 
 /** One page of zone runs, filtered, sorted and counted on the server. */
 export async function listRunHistory(ctx: Ctx, q: RunHistoryQuery): Promise<RunHistoryPage> {
-  const where = await whereOf(ctx, q);
-  const offset = (q.page - 1) * q.pageSize;
+  const p = await planOf(ctx, q);
   const [rows, count] = await Promise.all([
-    ctx.db.execute<Raw>(sql`${select} ${from} where ${where} ${orderBy(q)} limit ${q.pageSize} offset ${offset}`),
-    ctx.db.execute<{ n: number }>(sql`select count(*)::int as n from (select 1 ${from} where ${where} limit ${COUNT_CAP + 1}) t`),
+    ctx.db.execute<Raw>(pageQuery(p, q.pageSize, (q.page - 1) * q.pageSize)),
+    ctx.db.execute<{ n: number }>(countQuery(p)),
   ]);
   const n = count.rows[0]?.n ?? 0;
   return {
@@ -138,15 +184,15 @@ const csvRecord = (r: RunHistoryRow) => [
  * so memory stays flat. The scope and filter checks run before anything is written.
  */
 export async function prepareRunHistoryCsv(ctx: Ctx, f: RunHistoryFilter): Promise<(out: Writable) => Promise<void>> {
-  const where = await whereOf(ctx, f);
+  const p = await planOf(ctx, f);
   return async (out) => {
     const csv = stringify({ header: true, columns: [...CSV_COLUMNS] });
     csv.pipe(out);
     const write = (rec: unknown[]) =>
       csv.write(rec) ? Promise.resolve() : new Promise<void>((ok) => csv.once('drain', () => ok()));
-    const chunk = 2000;
+    const chunk = 5000;
     for (let offset = 0; offset < CSV_MAX_ROWS; offset += chunk) {
-      const rows = await ctx.db.execute<Raw>(sql`${select} ${from} where ${where} ${orderBy(f)} limit ${Math.min(chunk, CSV_MAX_ROWS - offset)} offset ${offset}`);
+      const rows = await ctx.db.execute<Raw>(pageQuery(p, Math.min(chunk, CSV_MAX_ROWS - offset), offset));
       for (const r of rows.rows) await write(csvRecord(rowOf(r)));
       if (rows.rows.length < chunk) break;
     }

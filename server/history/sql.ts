@@ -21,6 +21,9 @@ export const and = (parts: (SQL | undefined | null | false)[]): SQL => {
 export const iso = (d: Date | string | null | undefined): string | null =>
   d === null || d === undefined ? null : (d instanceof Date ? d : new Date(d)).toISOString();
 
+/** Milliseconds of a timestamp column from a raw query (drizzle hands those back as strings). */
+export const ms = (v: unknown): number | null => (v === null || v === undefined ? null : new Date(v as string | Date).getTime());
+
 export const num = (v: unknown): number => (v === null || v === undefined ? 0 : Number(v));
 export const numOrNull = (v: unknown): number | null => (v === null || v === undefined ? null : Number(v));
 export const round = (v: number, digits = 1) => {
@@ -37,17 +40,22 @@ export function dayBounds(date: string, tz: string): { start: Date; end: Date } 
   return { start: d.toJSDate(), end: d.plus({ days: 1 }).toJSDate() };
 }
 
+const DAY_MS = 86_400_000;
+const utcMs = (date: string) => Date.UTC(Number(date.slice(0, 4)), Number(date.slice(5, 7)) - 1, Number(date.slice(8, 10)));
+const isoOf = (ms: number) => new Date(ms).toISOString().slice(0, 10);
+
+/** Calendar arithmetic on YYYY-MM-DD strings (no timezone involved). */
 export function addDays(date: string, days: number): string {
-  return DateTime.fromISO(date, { zone: 'UTC' }).plus({ days }).toISODate()!;
+  return isoOf(utcMs(date) + days * DAY_MS);
 }
 
 export function daysBetween(from: string, to: string): number {
-  return Math.round(DateTime.fromISO(to, { zone: 'UTC' }).diff(DateTime.fromISO(from, { zone: 'UTC' }), 'days').days);
+  return Math.round((utcMs(to) - utcMs(from)) / DAY_MS);
 }
 
 /** Every date from..to inclusive. */
 export function dateRange(from: string, to: string): string[] {
   const out: string[] = [];
-  for (let d = from; d <= to; d = addDays(d, 1)) out.push(d);
+  for (let t = utcMs(from), end = utcMs(to); t <= end; t += DAY_MS) out.push(isoOf(t));
   return out;
 }

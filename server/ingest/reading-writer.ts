@@ -54,7 +54,7 @@ export class ReadingWriter {
     private pool: pg.Pool,
     private log: Logger,
     private clock: Clock,
-    private opts: { batchRows: number; flushMs: number; maxBufferedRows: number; onBufferFull?: () => void } = {
+    private opts: { batchRows: number; flushMs: number; maxBufferedRows: number; onBufferFull?: () => void; shared?: boolean } = {
       batchRows: 5000,
       flushMs: 200,
       maxBufferedRows: 500_000,
@@ -136,9 +136,21 @@ export class ReadingWriter {
       const ids = [...new Set(batch.map((p) => p.controllerId))];
       const stored = await client.query('select id, last_seq from controllers where id = any($1::int[]) for update', [ids]);
       const last = new Map<number, number>(stored.rows.map((r: { id: number; last_seq: string }) => [r.id, Number(r.last_seq)]));
-      const todo = batch.filter((p) => p.seq > (last.get(p.controllerId) ?? 0));
+      const todo = this.opts.shared ? batch : batch.filter((p) => p.seq > (last.get(p.controllerId) ?? 0));
       const lines = todo.flatMap((p) => p.rows.map(toCopyLine));
-      if (lines.length) {
+      if (lines.length && this.opts.shared) {
+        // Several instances share the ingest: a message redelivered to another instance after a
+        // crash may already be stored, so rows go through a staging table and only new ones land.
+        await client.query('create temp table if not exists readings_in (like readings) on commit delete rows');
+        const stream = client.query(
+          copyFrom('copy readings_in (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin'),
+        );
+        await pipeline(Readable.from(chunk(lines, 500)), stream);
+        await client.query(
+          `insert into readings select distinct on (r.controller_id, r.at, r.seq, r.board_at) r.* from readings_in r where not exists
+             (select 1 from readings x where x.controller_id = r.controller_id and x.at = r.at and x.seq = r.seq and x.board_at = r.board_at)`,
+        );
+      } else if (lines.length) {
         const stream = client.query(
           copyFrom(
             'copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin',

@@ -51,7 +51,12 @@ export function zoneControlRoutes(deps: AppDeps): Router {
       await recordAudit(db, actor, { action: 'valve.hold_override', entityType: 'zone', entityId: zone.id, siteId: site.id, outcome: 'override', after: { minutes, hold: hold.reason } });
     }
     try {
-      const out = await s.dispatcher.start({ zoneId: zone.id, seconds: minutes * 60, origin: 'manual', actor });
+      const already = s.dispatcher.siteActivity(site.id).active.some((a) => a.zoneId === zone.id);
+      const onOutcome = already ? undefined : await s.scheduler.executor.recordManual(zone.id, minutes * 60, 'manual');
+      const out = await s.dispatcher.start({ zoneId: zone.id, seconds: minutes * 60, origin: 'manual', actor, onOutcome }).catch((e) => {
+        onOutcome?.({ kind: 'failed', at: Date.now(), error: (e as Error).message });
+        throw e;
+      });
       await recordAudit(db, actor, { action: 'valve.start', entityType: 'zone', entityId: zone.id, siteId: site.id, outcome: out.state, after: { minutes, commandId: out.commandId } });
       res.status(202).json({ ...out, minutes, message: out.state === 'queued' ? `Queued: ${out.reason}` : 'Sent to the board; waiting for its acknowledgement' });
     } catch (e) {

@@ -4,9 +4,7 @@ import { idParam } from '../contracts/common';
 import { AppError } from '../errors';
 import { actorOf, requireAuth } from '../middleware/auth';
 import { parse } from '../middleware/validate';
-import { serviceRecords, users } from '../db/schema/index';
-import { desc, eq } from 'drizzle-orm';
-import { loadVisibleZone } from '../services/zones';
+import { listServiceRecords } from '../services/service-records';
 import { WalkService } from '../services/walks';
 import { realClock } from '../clock';
 import type { AppDeps } from '../app';
@@ -39,15 +37,8 @@ export function walkRoutes(deps: AppDeps) {
   const zoneRecords = Router();
   zoneRecords.use(requireAuth);
   zoneRecords.get('/:id/service-records', async (req, res) => {
-    const { zone } = await loadVisibleZone({ db: deps.db, actor: actorOf(req) }, parse(idParam, req.params).id);
-    const rows = await deps.db
-      .select({ id: serviceRecords.id, kind: serviceRecords.kind, summary: serviceRecords.summary, details: serviceRecords.details, createdAt: serviceRecords.createdAt, author: users.name })
-      .from(serviceRecords)
-      .leftJoin(users, eq(serviceRecords.authorId, users.id))
-      .where(eq(serviceRecords.zoneId, zone.id))
-      .orderBy(desc(serviceRecords.createdAt))
-      .limit(100);
-    res.json({ items: rows });
+    // Walk results and technicians' notes, with their photos (server/services/service-records.ts).
+    res.json({ items: await listServiceRecords({ db: deps.db, actor: actorOf(req) }, { zoneId: parse(idParam, req.params).id }) });
   });
   return { sites, walks, zoneRecords };
 }

@@ -161,7 +161,7 @@ export class RunExecutor {
     this.executing.delete(runId);
   }
 
-  private async finishZone(zr: ZoneRun, d: Done, startMs: number | null, endMs: number | null) {
+  async finishZone(zr: ZoneRun, d: Done, startMs: number | null, endMs: number | null) {
     const zone = (await this.d.db.select().from(zones).where(eq(zones.id, zr.zoneId)))[0];
     const minutes = startMs && endMs ? Math.max(0, (endMs - startMs) / 60_000) : null;
     const flow = zone ? zone.headCount * zone.flowPerHeadLpm : 0;
@@ -236,6 +236,48 @@ export class RunExecutor {
     });
     const o = await outcome;
     await this.finishZone(zr, o, opened, opened ? o.end : null);
+  }
+
+  /**
+   * A manual or walk-test start is recorded like a program's: a run of its own kind with one zone
+   * run, so history and water use include it. Returns the outcome hook to hand the dispatcher.
+   */
+  async recordManual(zoneId: number, seconds: number, kind: 'manual' | 'walk'): Promise<(o: ZoneOutcome) => void> {
+    const [row] = await this.d.db
+      .select({ zone: zones, ctrl: controllers })
+      .from(zones)
+      .innerJoin(controllers, eq(zones.controllerId, controllers.id))
+      .where(eq(zones.id, zoneId));
+    const now = this.d.clock.now();
+    const [run] = await this.d.db.insert(runs).values({ siteId: row.ctrl.siteId, programId: null, kind, scheduledFor: new Date(now), state: 'running' }).returning();
+    const [zr] = await this.d.db
+      .insert(zoneRuns)
+      .values({
+        runId: run.id, siteId: row.ctrl.siteId, zoneId, controllerId: row.ctrl.id, position: 1, cycle: 0,
+        plannedStart: new Date(now), plannedEnd: new Date(now + seconds * 1000), plannedMinutes: Math.round((seconds / 60) * 100) / 100,
+        estimatedLitres: 0, state: 'running',
+      })
+      .returning();
+    let opened: number | null = null;
+    let done = false;
+    return (o: ZoneOutcome) => {
+      if (done) return;
+      if (o.kind === 'opened') {
+        opened = o.at;
+        void this.d.db.update(zoneRuns).set({ actualStart: new Date(o.at) }).where(eq(zoneRuns.id, zr.id));
+        return;
+      }
+      done = true;
+      const d: Done =
+        o.kind === 'failed'
+          ? { state: 'failed', reason: o.error }
+          : o.why === 'completed' || o.why === 'failsafe'
+            ? { state: 'completed' }
+            : o.why === 'rain'
+              ? { state: 'held_rain', reason: 'Closed when the rain sensor tripped' }
+              : { state: 'stopped', reason: o.why === 'button' ? 'Closed with the board’s button' : 'Stopped by a user' };
+      void this.finishZone(zr, d, opened, opened ? o.at : null).then(() => this.setRun(run.id, d.state === 'completed' ? 'completed' : d.state === 'failed' ? 'failed' : 'partial', d.reason ?? null, true));
+    };
   }
 
   /** After a restart: end or resume what a run left behind, never doubling a zone. */

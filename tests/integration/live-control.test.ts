@@ -59,6 +59,14 @@ describe('manual valve control', () => {
     live.close();
   });
 
+  it('records a manual start as a run of its own with a zone run, for the history', async () => {
+    const r = await until(async () => (await w.tdb.db.execute(sql`select r.kind, zr.state, zr.actual_minutes, zr.estimated_litres from zone_runs zr join runs r on r.id = zr.run_id where zr.zone_id = ${w.f.zoneA} and r.kind = 'manual' and zr.state <> 'running' order by zr.id limit 1`)).rows[0]);
+    expect(r.kind).toBe('manual');
+    expect(r.state).toBe('stopped');
+    // fixture zone A1: 6 heads × 5 L/min
+    expect(Number(r.estimated_litres)).toBeCloseTo(30 * Number(r.actual_minutes), 0);
+  });
+
   it('writes each command to the audit log with who and the outcome', async () => {
     const r = await w.tdb.db.execute(sql`select action, outcome, actor_label from audit_log where action like 'valve.%' order by id`);
     expect(r.rows).toEqual(expect.arrayContaining([

@@ -1,6 +1,6 @@
-import { date, doublePrecision, index, integer, pgTable, primaryKey, timestamp } from 'drizzle-orm/pg-core';
+import { date, doublePrecision, index, integer, pgTable, primaryKey, real, timestamp } from 'drizzle-orm/pg-core';
 import { sites } from './sites';
-import { zones } from './devices';
+import { controllers, zones } from './devices';
 
 /**
  * Water put down per zone per local calendar day of the site (the day a zone run was planned
@@ -39,3 +39,32 @@ export const waterUseDaily = pgTable(
 );
 
 export type WaterUseDay = typeof waterUseDaily.$inferSelect;
+
+/**
+ * Readings per controller and UTC hour: count, sum, lowest and highest of each measurement, so a
+ * year of one controller is 8,760 compact rows rather than a walk over every reading. Kept up to
+ * date from the reading events (hours touched are recomputed from the readings table).
+ */
+export const readingsHourly = pgTable(
+  'readings_hourly',
+  {
+    controllerId: integer('controller_id')
+      .notNull()
+      .references(() => controllers.id, { onDelete: 'cascade' }),
+    hour: timestamp('hour', { withTimezone: true }).notNull(),
+    n: integer('n').notNull(),
+    moistureSum: doublePrecision('moisture_sum').notNull(),
+    moistureMin: real('moisture_min').notNull(),
+    moistureMax: real('moisture_max').notNull(),
+    supplySum: doublePrecision('supply_sum').notNull(),
+    supplyMin: real('supply_min').notNull(),
+    supplyMax: real('supply_max').notNull(),
+    /** Readings that carried a flow value. */
+    flowN: integer('flow_n').notNull(),
+    flowSum: doublePrecision('flow_sum'),
+    flowMin: real('flow_min'),
+    flowMax: real('flow_max'),
+    updatedAt: timestamp('updated_at', { withTimezone: true }).notNull().defaultNow(),
+  },
+  (t) => [primaryKey({ name: 'readings_hourly_pk', columns: [t.controllerId, t.hour] })],
+);

@@ -8,3 +8,4 @@ export * from './weather';
 export * from './programs';
 export * from './history';
 export * from './alerts';
+export * from './firm';

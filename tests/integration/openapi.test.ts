@@ -1,0 +1,73 @@
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import request from 'supertest';
+import type { Express } from 'express';
+import { createTestDb, type TestDb } from '../helpers/db';
+import { buildTestApp, signedIn } from '../helpers/api';
+import { seedFixture, type Fixture } from '../helpers/fixtures';
+
+let tdb: TestDb;
+let app: Express;
+let f: Fixture;
+
+beforeAll(async () => {
+  tdb = await createTestDb();
+  f = await seedFixture(tdb.db);
+  app = buildTestApp(tdb).app;
+});
+afterAll(async () => {
+  await tdb.drop();
+});
+
+type Layer = { rawPath?: unknown; route?: { path: string; methods: Record<string, boolean> }; handle?: { stack?: Layer[] } };
+
+/** Every route the app serves, as "METHOD /api/…", read from Express's own router stack. */
+function mountedRoutes(app: Express): string[] {
+  const out = new Set<string>();
+  const walk = (stack: Layer[], prefix: string) => {
+    for (const l of stack) {
+      if (l.route) {
+        for (const m of Object.keys(l.route.methods)) if (m !== '_all') out.add(`${m.toUpperCase()} ${(prefix + l.route.path).replace(/(.)\/$/, '$1')}`);
+      } else if (l.handle?.stack) walk(l.handle.stack, prefix + (typeof l.rawPath === 'string' && l.rawPath !== '/' ? l.rawPath : ''));
+    }
+  };
+  walk((app as unknown as { router: { stack: Layer[] } }).router.stack, '');
+  return [...out].filter((r) => r.includes(' /api/')).sort();
+}
+
+describe('GET /api/openapi.json', () => {
+  it('is for signed-in users only', async () => {
+    expect((await request(app).get('/api/openapi.json')).status).toBe(401);
+    const owner = await signedIn(app, f.users.owner.email);
+    const res = await owner.get('/api/openapi.json');
+    expect(res.status).toBe(200);
+    expect(res.body.openapi).toBe('3.1.0');
+  });
+
+  it('lists every route the server mounts, and nothing it does not', async () => {
+    const doc = (await (await signedIn(app, f.users.admin.email)).get('/api/openapi.json')).body;
+    const documented = Object.entries(doc.paths as Record<string, Record<string, unknown>>)
+      .flatMap(([p, ops]) => Object.keys(ops).map((m) => `${m.toUpperCase()} ${p.replace(/\{(\w+)\}/g, ':$1')}`))
+      .sort();
+    const mounted = mountedRoutes(app);
+    expect(mounted.filter((r) => !documented.includes(r)), 'mounted but not in server/services/openapi.ts').toEqual([]);
+    expect(documented.filter((r) => !mounted.includes(r)), 'documented but not mounted').toEqual([]);
+  });
+
+  it('describes request bodies with the zod schemas the routes validate with', async () => {
+    const doc = (await (await signedIn(app, f.users.admin.email)).get('/api/openapi.json')).body;
+    const invite = doc.paths['/api/users/invitations'].post;
+    const schema = invite.requestBody.content['application/json'].schema;
+    expect(schema.required).toEqual(expect.arrayContaining(['email', 'name', 'role']));
+    expect(schema.properties.role.enum).toEqual(['admin', 'manager', 'technician', 'owner']);
+    expect(schema.additionalProperties).toBe(false);
+    const zone = doc.paths['/api/zones'].post.requestBody.content['application/json'].schema;
+    expect(zone.properties.relay).toMatchObject({ type: 'integer', minimum: 1, maximum: 8 });
+    const plan = doc.paths['/api/sites/{id}/plan'].post.requestBody.content['multipart/form-data'].schema;
+    expect(plan.properties.file).toMatchObject({ type: 'string', format: 'binary' });
+    const audit = doc.paths['/api/audit'].get.parameters.map((p: { name: string }) => p.name);
+    expect(audit).toEqual(expect.arrayContaining(['siteId', 'userId', 'action', 'entityType', 'from', 'to', 'page', 'pageSize']));
+    for (const [p, ops] of Object.entries(doc.paths as Record<string, Record<string, { summary: string }>>)) {
+      for (const [m, op] of Object.entries(ops)) expect(op.summary, `${m} ${p}`).toBeTruthy();
+    }
+  });
+});
