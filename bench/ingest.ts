@@ -18,6 +18,8 @@ export type IngestResult = {
   serverRssMb: number;
   sent: number;
   stored: number;
+  /** Rows stored twice (same board, time and sequence number); must be 0. */
+  duplicates: number;
   valveEvents: number;
 };
 
@@ -90,6 +92,7 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   await sleep(500);
   await rt.writer.flush();
   const stored = await count();
+  const duplicates = Number((await db.db.execute(sql`select count(*) - count(distinct (controller_id, board_at, seq)) as n from readings`)).rows[0].n);
   ws.close();
   await rt.close();
   await db.drop();
@@ -103,6 +106,7 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
     serverRssMb: Math.round(peakRss / 1024 / 1024),
     sent: totals.sent,
     stored,
+    duplicates,
     valveEvents: latencies.length,
   };
 }

@@ -214,11 +214,34 @@ export class ValveDispatcher implements ValveListener {
   }
 
   /** Send a command and wait for its acknowledgement, retrying on silence. `energise` reserves a stagger slot first. */
+  /** One energising command at a time per controller: the next waits for the previous one's acknowledgement. */
+  private energiseLocks = new Map<number, Promise<void>>();
+
+  private async withEnergiseLock<T>(board: BoardLive, fn: () => Promise<T>): Promise<T> {
+    const id = board.controllerId;
+    const prev = this.energiseLocks.get(id) ?? Promise.resolve();
+    let release!: () => void;
+    const mine = new Promise<void>((r) => (release = r));
+    const chained = prev.then(() => mine);
+    this.energiseLocks.set(id, chained);
+    await prev;
+    try {
+      return await fn();
+    } finally {
+      release();
+      if (this.energiseLocks.get(id) === chained) this.energiseLocks.delete(id);
+    }
+  }
+
+  /**
+   * Send a command and wait for its acknowledgement, retrying on silence. An energising command
+   * waits its turn on the controller and for the stagger after the previous relay's acknowledged
+   * start, so two relays are never energised closer than the stagger, whatever the network does.
+   */
   private async sendWithAck(board: BoardLive, make: () => Command, energise: boolean): Promise<void> {
     const attempts = 1 + this.d.retries;
     let lastErr = 'no acknowledgement';
-    for (let i = 0; i < attempts; i++) {
-      if (this.stopped) throw new Error('server stopping');
+    const once = async (attempt: number): Promise<Ack | null> => {
       if (energise) await this.waitUntil(this.reserveSlot(board));
       const cmd = make();
       const ack = new Promise<Ack | null>((resolve) => {
@@ -232,15 +255,22 @@ export class ValveDispatcher implements ValveListener {
           resolve(a);
         });
       });
-      await this.d.db
-        .update(commands)
-        .set({ state: 'sent', attempts: sql`${commands.attempts} + 1`, sentAt: new Date(this.d.clock.now()) })
-        .where(eq(commands.id, cmd.id))
-        .catch(() => {});
       await this.d.send(board.serial, cmd).catch((e) => {
         lastErr = `could not send: ${(e as Error).message}`;
       });
+      await this.d.db
+        .update(commands)
+        .set({ state: 'sent', attempts: attempt + 1, sentAt: new Date(this.d.clock.now()) })
+        .where(eq(commands.id, cmd.id))
+        .catch(() => {});
       const a = await ack;
+      // the relay is on by now (or never will be from this command): the next one waits the stagger from here
+      if (energise) this.nextSlot.set(board.controllerId, Math.max(this.nextSlot.get(board.controllerId) ?? 0, this.d.clock.now() + board.staggerMs));
+      return a;
+    };
+    for (let i = 0; i < attempts; i++) {
+      if (this.stopped) throw new Error('server stopping');
+      const a = energise ? await this.withEnergiseLock(board, () => once(i)) : await once(i);
       if (a?.ok) return;
       if (a && !a.ok) throw new Error(`the board refused: ${a.error ?? 'no reason given'}`);
       lastErr = `no acknowledgement from ${board.name} after ${i + 1} tries`;

@@ -21,6 +21,8 @@ const everyone: readonly Role[] = ['admin', 'manager', 'technician', 'owner'];
  */
 export const navEntries: readonly NavEntry[] = [
   { key: 'fleet', label: 'Fleet', icon: 'grid_view', to: { name: 'fleet' }, roles: everyone },
+  { key: 'history', label: 'Run history', icon: 'history', to: { name: 'history' }, roles: everyone },
+  { key: 'alerts', label: 'Alerts', icon: 'notifications', to: { name: 'alerts' }, roles: everyone },
   { key: 'calculator', label: 'Field calculator', icon: 'calculate', to: { name: 'calculator' }, roles: everyone },
   { key: 'simulator', label: 'Simulated boards', icon: 'developer_board', to: { name: 'simulator' }, roles: ['admin'], demoOnly: true },
 ];

@@ -80,7 +80,23 @@ export const routes: RouteRecordRaw[] = [
         props: (r) => ({ id: Number(r.params.id) }),
         meta: { title: 'Walk test', roles: ['technician', 'manager', 'admin'] },
       },
+      {
+        path: 'sites/:id(\\d+)/water',
+        name: 'site-water',
+        component: () => import('../pages/WaterUsePage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Water use' },
+      },
+      {
+        path: 'sites/:id(\\d+)/review',
+        name: 'site-review',
+        component: () => import('../pages/ReviewPage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Dry-spell review' },
+      },
       { path: 'calculator', name: 'calculator', component: () => import('../pages/CalculatorPage.vue'), meta: { title: 'Field calculator' } },
+      { path: 'history', name: 'history', component: () => import('../pages/HistoryPage.vue'), meta: { title: 'Run history' } },
+      { path: 'alerts', name: 'alerts', component: () => import('../pages/AlertsPage.vue'), meta: { title: 'Alerts' } },
       // Programs, History, Alerts, Calculator … are added here with their pages (and in layouts/nav.ts).
       { path: ':rest(.*)*', name: 'not-found', component: () => import('../pages/NotFoundPage.vue'), meta: { title: 'Not found' } },
     ],
