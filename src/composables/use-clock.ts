@@ -43,7 +43,9 @@ const rtfs = {
 export function ago(iso: string | number, nowMs: number, style: 'long' | 'short' = 'long'): string {
   const rtf = rtfs[style];
   const t = typeof iso === 'number' ? iso : new Date(iso).getTime();
-  const s = Math.round((t - nowMs) / 1000);
+  let s = Math.round((t - nowMs) / 1000);
+  // the page's clock ticks once a second: a reading that arrived since the last tick is "now", not "in 1 sec."
+  if (s > 0 && s < 5) s = 0;
   const a = Math.abs(s);
   if (a < 60) return rtf.format(s, 'second');
   if (a < 3600) return rtf.format(Math.round(s / 60), 'minute');
