@@ -46,7 +46,10 @@ export async function connectExternalBroker(opts: {
     },
   });
   client.on('error', (err) => log.warn({ err: err.message }, 'external broker error'));
-  const topics = ['ack', 'telemetry', 'event'].map((k) => `$share/${share}/${TOPIC_ROOT}/+/${k}`).concat([`${TOPIC_ROOT}/+/state`, `${TOPIC_ROOT}/+/status`]);
+  // Telemetry and events are split between instances (each stored once); acknowledgements go to
+  // every instance, because only the one that sent the command is waiting for it; retained state
+  // and status go to every instance, so each knows every board's relays and whether it is online.
+  const topics = ['telemetry', 'event'].map((k) => `$share/${share}/${TOPIC_ROOT}/+/${k}`).concat([`${TOPIC_ROOT}/+/ack`, `${TOPIC_ROOT}/+/state`, `${TOPIC_ROOT}/+/status`]);
   await client.subscribeAsync(topics, { qos: 1 });
   // Subscribe again on every reconnect, even when the broker says it kept our session: a broker
   // restored from its persistence file does not always bring shared subscriptions back.
