@@ -1,8 +1,5 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { DateTime } from 'luxon';
-import { eq, sql } from 'drizzle-orm';
-import { programZones, programs, runs, zoneRuns, zones } from '../../server/db/schema/index';
-import { programCrons } from '../../server/scheduler/calendar';
+import { zones } from '../../server/db/schema/index';
 import { startRuntime, type Runtime } from '../../server/runtime';
 import { SERVER_MQTT_USER } from '../../server/broker/mosquitto';
 import { provisionBoards, type BoardSpecRow } from '../../server/services/device-secrets';
