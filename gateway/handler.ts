@@ -18,9 +18,19 @@ type Outcome = { ok: true } | { ok: false; reason: DropReason };
  */
 export class ProtocolHandler {
   readonly stats = emptyStats();
-  /** Highest sequence number accepted per board (seeded from the database at connect). */
+  /**
+   * Highest sequence number accepted per board and lane (`r:`, `v:`, `a:` + serial). The readings
+   * lane is seeded from the database at connect (only stored readings move it there); valve events
+   * are also kept unique by the database, so a resend after a restart is stored once.
+   */
   private lastSeq = new Map<string, number>();
-  /** Each board's messages are stored strictly in order, so a stored sequence number never runs ahead of an unstored one. */
+  /** Highest sequence number seen per board in any lane, for counting gaps. */
+  private highest = new Map<string, number>();
+  /**
+   * Each board's readings are stored strictly in order, so the stored sequence number (which only
+   * readings move) never runs ahead of an unstored reading; valve facts keep their own order and
+   * are de-duplicated by the database (one valve event per board and sequence number).
+   */
   private chains = new Map<string, Promise<unknown>>();
 
   constructor(
@@ -48,7 +58,8 @@ export class ProtocolHandler {
    */
   setLastSeq(serial: string, seq: number) {
     this.poisoned.delete(serial);
-    this.lastSeq.set(serial, Math.max(seq, this.lastSeq.get(serial) ?? 0));
+    this.lastSeq.set(`r:${serial}`, Math.max(seq, this.lastSeq.get(`r:${serial}`) ?? 0));
+    this.highest.set(serial, Math.max(seq, this.highest.get(serial) ?? 0));
   }
 
   drop(serial: string, reason: DropReason, detail?: string): Outcome {
@@ -82,34 +93,49 @@ export class ProtocolHandler {
     }
     const msg = parsed.data as { seq?: number };
     const serial = t.serial;
+    // Each kind of fact is de-duplicated in its own lane: readings, valve facts, acknowledgements.
+    const lane = t.kind === 'telemetry' ? 'r' : t.kind === 'ack' ? 'a' : 'v';
+    const laneKey = `${lane}:${serial}`;
+    // A refused message does not move the board's sequence, so its resend is accepted.
+    if (lane !== 'a' && this.poisoned.has(serial)) throw new Error('an earlier message from this board was not stored; waiting for it again');
     // Retained state and status are snapshots: always applied, never counted as duplicates.
     if (this.dedupeBySeq && typeof msg.seq === 'number' && t.kind !== 'state') {
-      const last = this.lastSeq.get(serial) ?? 0;
+      const last = this.lastSeq.get(laneKey) ?? 0;
       if (msg.seq <= last) return this.drop(serial, 'duplicate', `seq ${msg.seq} ≤ ${last}`);
+      // One counter runs through every kind of message, so gaps are counted across lanes.
       // A board counts from its power-on clock, so a big jump is a restart, not lost messages.
-      if (msg.seq > last + 1 && last > 0 && msg.seq - last < 1_000_000) {
-        const missing = msg.seq - last - 1;
+      const high = this.highest.get(serial) ?? 0;
+      if (msg.seq > high + 1 && high > 0 && msg.seq - high < 1_000_000) {
+        const missing = msg.seq - high - 1;
         this.stats.gaps += missing;
         this.sink.gap(serial, missing);
       }
-      this.lastSeq.set(serial, msg.seq);
+      this.highest.set(serial, Math.max(high, msg.seq));
+      this.lastSeq.set(laneKey, msg.seq);
     }
-    if (this.poisoned.has(serial)) throw new Error('an earlier message from this board was not stored; waiting for it again');
-    const prev = this.chains.get(serial) ?? Promise.resolve();
+    if (t.kind === 'ack') {
+      // Nothing to store and nothing stored depends on it: an acknowledgement never waits.
+      await this.deliver(serial, t.kind, parsed.data, receivedAt);
+      this.stats.accepted++;
+      return { ok: true };
+    }
+    // Two lanes per board, each strictly in order: readings (batched, so slower) and valve facts
+    // (events, states, status). A valve event never waits for a batch of readings to commit.
+    const prev = this.chains.get(laneKey) ?? Promise.resolve();
     const mine = prev.catch(() => {}).then(() => {
       if (this.poisoned.has(serial)) throw new Error('an earlier message from this board was not stored');
       return this.deliver(serial, t.kind, parsed.data, receivedAt);
     });
-    this.chains.set(serial, mine);
+    this.chains.set(laneKey, mine);
     try {
       await mine;
     } catch (e) {
       // Not stored: refuse what follows, and accept this message again when the board resends it.
       this.poisoned.add(serial);
-      if (typeof msg.seq === 'number') this.lastSeq.set(serial, Math.min(this.lastSeq.get(serial) ?? msg.seq, msg.seq - 1));
+      if (typeof msg.seq === 'number') this.lastSeq.set(laneKey, Math.min(this.lastSeq.get(laneKey) ?? msg.seq, msg.seq - 1));
       throw e;
     } finally {
-      if (this.chains.get(serial) === mine) this.chains.delete(serial);
+      if (this.chains.get(laneKey) === mine) this.chains.delete(laneKey);
     }
     this.stats.accepted++;
     return { ok: true };

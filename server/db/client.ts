@@ -9,6 +9,9 @@ export function createDb(url: string, opts: { max?: number } = {}): DbHandle {
   const pool = new pg.Pool({ connectionString: url, max: opts.max ?? 10 });
   // An idle client losing its connection (PostgreSQL restart) must not crash the process.
   pool.on('error', () => {});
+  // A client checked out of the pool has no idle listener; without one of its own, its connection
+  // dropping between two queries would be an uncaught error. The query in flight still fails.
+  pool.on('connect', (client) => client.on('error', () => {}));
   const db = drizzle(pool, { schema, casing: 'snake_case' });
   return { db, pool, close: () => pool.end() };
 }

@@ -122,17 +122,18 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       if (!b) return;
       const at = serverTime(b, e.at, receivedAt);
       const zoneId = b.zoneByRelay.get(e.relay) ?? null;
-      await db.transaction(async (tx) => {
-        await tx.insert(valveEvents).values({
+      // One row per board and sequence number: a resend (or a second instance's copy) stores nothing.
+      // The board's stored sequence number moves with its readings only (see ReadingWriter).
+      const stored = await db
+        .insert(valveEvents)
+        .values({
           controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open, source: e.source,
           commandId: e.cmdId && /^[0-9a-f-]{36}$/.test(e.cmdId) ? e.cmdId : null,
           seq: e.seq, boardAt: new Date(e.at), at, receivedAt,
-        });
-        await tx
-          .update(controllers)
-          .set({ lastSeq: sql`greatest(${controllers.lastSeq}, ${e.seq})`, lastSeenAt: receivedAt })
-          .where(eq(controllers.id, b.controllerId));
-      });
+        })
+        .onConflictDoNothing()
+        .returning({ id: valveEvents.id });
+      if (!stored.length) return;
       b.lastSeenAt = receivedAt.getTime();
       const r = b.relays[e.relay - 1];
       if (r) {

@@ -179,6 +179,14 @@ export class ValveDispatcher implements ValveListener {
       await this.sendWithAck(board, cmd, !relayOpen && !extend);
       if (this.stopped) return;
       const now = this.d.clock.now();
+      if (a.state === 'closing' || a.done) {
+        // Stopped while the open was on its way: the board did open it, and the close already
+        // sent decides from here (it finishes the run, or the board's failsafe closes the valve).
+        await this.d.db.update(commands).set({ state: 'acked', ackedAt: new Date(now) }).where(eq(commands.id, a.commandId));
+        this.emitCommand(board, a, 'acked');
+        if (!extend && !a.done) a.onOutcome?.({ kind: 'opened', at: now });
+        return;
+      }
       a.state = 'open';
       a.plannedEnd = now + a.seconds * 1000;
       const r = board.relays[a.relay - 1];

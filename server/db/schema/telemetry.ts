@@ -1,4 +1,5 @@
-import { bigint, boolean, index, integer, pgEnum, pgTable, real, smallint, timestamp, uuid, varchar } from 'drizzle-orm/pg-core';
+import { sql } from 'drizzle-orm';
+import { bigint, boolean, index, integer, pgEnum, pgTable, real, smallint, timestamp, uniqueIndex, uuid, varchar } from 'drizzle-orm/pg-core';
 import { controllers, zones } from './devices';
 import { users } from './users';
 
@@ -25,7 +26,12 @@ export const valveEvents = pgTable(
     at: timestamp('at', { withTimezone: true }).notNull(),
     receivedAt: timestamp('received_at', { withTimezone: true }).notNull().defaultNow(),
   },
-  (t) => [index('valve_events_zone_at_idx').on(t.zoneId, t.at), index('valve_events_controller_at_idx').on(t.controllerId, t.at)],
+  (t) => [
+    index('valve_events_zone_at_idx').on(t.zoneId, t.at),
+    index('valve_events_controller_at_idx').on(t.controllerId, t.at),
+    // A board's event resent after a reconnect, or delivered to a second instance, is stored once.
+    uniqueIndex('valve_events_controller_seq_uq').on(t.controllerId, t.seq).where(sql`seq is not null`),
+  ],
 );
 
 /**
