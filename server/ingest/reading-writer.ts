@@ -19,7 +19,8 @@ export type ReadingRow = {
   rssi: number;
 };
 
-type Pending = { rows: ReadingRow[]; controllerId: number; seq: number; resolve: () => void; reject: (e: Error) => void };
+/** One board message waiting for its batch: its rows already as COPY text, so a waiting message holds one string, not objects. */
+type Pending = { text: string; n: number; controllerId: number; seq: number; resolve: () => void; reject: (e: Error) => void };
 
 export type WriterStats = {
   rowsWritten: number;
@@ -69,8 +70,10 @@ export class ReadingWriter {
       this.opts.onBufferFull?.();
       return Promise.reject(new Error('reading buffer full'));
     }
+    let text = '';
+    for (const r of rows) text += toCopyLine(r);
     return new Promise((resolve, reject) => {
-      this.queue.push({ rows, controllerId, seq, resolve, reject });
+      this.queue.push({ text, n: rows.length, controllerId, seq, resolve, reject });
       this.stats.buffered += rows.length;
       this.stats.maxBuffered = Math.max(this.stats.maxBuffered, this.stats.buffered);
       if (this.stats.buffered >= this.opts.batchRows) void this.flush();
@@ -97,10 +100,10 @@ export class ReadingWriter {
       // Take up to batchRows worth of whole messages.
       const batch: Pending[] = [];
       let n = 0;
-      while (this.queue.length && (n === 0 || n + this.queue[0].rows.length <= this.opts.batchRows)) {
+      while (this.queue.length && (n === 0 || n + this.queue[0].n <= this.opts.batchRows)) {
         const p = this.queue.shift()!;
         batch.push(p);
-        n += p.rows.length;
+        n += p.n;
       }
       for (;;) {
         try {
@@ -137,7 +140,7 @@ export class ReadingWriter {
       const stored = await client.query('select id, last_seq from controllers where id = any($1::int[]) for update', [ids]);
       const last = new Map<number, number>(stored.rows.map((r: { id: number; last_seq: string }) => [r.id, Number(r.last_seq)]));
       const todo = this.opts.shared ? batch : batch.filter((p) => p.seq > (last.get(p.controllerId) ?? 0));
-      const lines = todo.flatMap((p) => p.rows.map(toCopyLine));
+      const lines = todo.map((p) => p.text);
       if (lines.length && this.opts.shared) {
         // Several instances share the ingest: a message redelivered to another instance after a
         // crash may already be stored, so rows go through a staging table and only new ones land.
@@ -145,7 +148,7 @@ export class ReadingWriter {
         const stream = client.query(
           copyFrom('copy readings_in (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin'),
         );
-        await pipeline(Readable.from(chunk(lines, 500)), stream);
+        await pipeline(Readable.from(chunk(lines, 64)), stream);
         await client.query(
           `insert into readings select distinct on (r.controller_id, r.at, r.seq, r.board_at) r.* from readings_in r where not exists
              (select 1 from readings x where x.controller_id = r.controller_id and x.at = r.at and x.seq = r.seq and x.board_at = r.board_at)`,
@@ -156,7 +159,7 @@ export class ReadingWriter {
             'copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin',
           ),
         );
-        await pipeline(Readable.from(chunk(lines, 500)), stream);
+        await pipeline(Readable.from(chunk(lines, 64)), stream);
       }
       const maxSeq = new Map<number, number>();
       for (const p of todo) maxSeq.set(p.controllerId, Math.max(maxSeq.get(p.controllerId) ?? 0, p.seq));
@@ -184,6 +187,7 @@ export class ReadingWriter {
   }
 }
 
-function* chunk(lines: string[], size: number) {
-  for (let i = 0; i < lines.length; i += size) yield lines.slice(i, i + size).join('');
+/** Messages' COPY text in chunks of a few hundred kilobytes. */
+function* chunk(texts: string[], size: number) {
+  for (let i = 0; i < texts.length; i += size) yield texts.slice(i, i + size).join('');
 }
