@@ -1,6 +1,7 @@
 import { and, asc, eq, inArray, sql } from 'drizzle-orm';
 import type { Logger } from 'pino';
 import type { Clock } from '../clock';
+import { batchedLoad, batchedWrite } from '../db/batch';
 import type { Db } from '../db/client';
 import { controllers, programZones, programs, readings, runs, sites, zoneRuns, zones, type Site, type ZoneRun } from '../db/schema/index';
 import { usableSupply } from '../domain/hydraulics';
@@ -8,7 +9,7 @@ import type { Fleet } from '../fleet/fleet';
 import type { LiveBus } from '../live/bus';
 import type { ValveDispatcher, ZoneOutcome } from '../services/dispatcher';
 import { dayRestriction, windowConflict } from './calendar';
-import { siteHold } from './holds';
+import { activeRainDelays, siteHold } from './holds';
 import { zoneMinutes } from './minutes';
 import { planRun, type PlanZone } from './planner';
 
@@ -33,6 +34,18 @@ export class RunExecutor {
   private rainWaiters = new Map<number, Set<() => void>>();
 
   constructor(private d: ExecDeps) {}
+
+  // Zones that start together share their queries (see db/batch.ts).
+  private siteById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(sites).where(inArray(sites.id, [...ids]))).map((s) => [s.id, s])));
+  private zoneById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(zones).where(inArray(zones.id, [...ids]))).map((z) => [z.id, z])));
+  private delayAt = batchedLoad((ids: readonly number[]) => activeRainDelays(this.d.db, ids, this.d.clock.now()));
+  private markRunning = batchedWrite((ids: readonly number[]) => this.d.db.update(zoneRuns).set({ state: 'running' }).where(inArray(zoneRuns.id, [...ids])));
+  private markStarted = batchedWrite((xs: readonly { id: number; at: number; commandId?: string }[]) =>
+    this.d.db.execute(sql`
+      update zone_runs z set actual_start = coalesce(v.at, z.actual_start), command_id = coalesce(v.command_id, z.command_id)
+      from unnest(${sql.param(xs.map((x) => x.id))}::bigint[], ${sql.param(xs.map((x) => (x.at ? new Date(x.at).toISOString() : null)))}::timestamptz[], ${sql.param(xs.map((x) => x.commandId ?? null))}::uuid[]) as v(id, at, command_id)
+      where z.id = v.id`),
+  );
 
   private sleepUntil(t: number, siteId: number): Promise<'time' | 'rain'> {
     const ms = t - this.d.clock.now();
@@ -197,25 +210,25 @@ export class RunExecutor {
   private async runZone(zr: ZoneRun, site0: Site): Promise<void> {
     const woke = await this.sleepUntil(zr.plannedStart.getTime(), site0.id);
     if (!this.d.isLeader()) return;
-    const [site] = await this.d.db.select().from(sites).where(eq(sites.id, site0.id));
+    const site = (await this.siteById(site0.id)) ?? site0;
     const now = this.d.clock.now();
-    const hold = await siteHold(this.d.db, this.d.fleet, site, now);
+    const hold = await siteHold(this.d.db, this.d.fleet, site, now, (id) => this.delayAt(id));
     if (hold || woke === 'rain') return this.finishZone(zr, { state: 'held_rain', reason: hold?.reason ?? 'Held by rain' }, null, null);
     const seconds = Math.max(1, Math.round(zr.plannedMinutes * 60));
     const w = windowConflict(site.restrictions, now, now + seconds * 1000, site.timezone);
     if (w) return this.finishZone(zr, { state: 'skipped_restriction', reason: w }, null, null);
-    const [zone] = await this.d.db.select().from(zones).where(eq(zones.id, zr.zoneId));
+    const zone = await this.zoneById(zr.zoneId);
     const board = this.d.fleet.getById(zr.controllerId);
     if (zone?.moistureThresholdPct && board?.latest && board.latest.moisturePct >= zone.moistureThresholdPct) {
       return this.finishZone(zr, { state: 'held_rain', reason: `Held: soil moisture ${board.latest.moisturePct.toFixed(0)} % is above this zone’s ${zone.moistureThresholdPct} %` }, null, null);
     }
-    await this.d.db.update(zoneRuns).set({ state: 'running' }).where(eq(zoneRuns.id, zr.id));
+    await this.markRunning(zr.id);
     let opened: number | null = null;
     const outcome = new Promise<Done & { end: number }>((resolve) => {
       const on = (o: ZoneOutcome) => {
         if (o.kind === 'opened') {
           opened = o.at;
-          void this.d.db.update(zoneRuns).set({ actualStart: new Date(o.at) }).where(eq(zoneRuns.id, zr.id));
+          void this.markStarted({ id: zr.id, at: o.at }).catch((err) => this.d.log.warn({ err }, 'zone run start not recorded'));
           return;
         }
         if (o.kind === 'failed') return resolve({ state: 'failed', reason: o.error, end: o.at });
@@ -231,7 +244,7 @@ export class RunExecutor {
       };
       this.d.dispatcher
         .start({ zoneId: zr.zoneId, seconds, origin: 'program', onOutcome: on })
-        .then((r) => this.d.db.update(zoneRuns).set({ commandId: r.commandId }).where(eq(zoneRuns.id, zr.id)))
+        .then((r) => this.markStarted({ id: zr.id, at: 0, commandId: r.commandId }))
         .catch((e: Error) => resolve({ state: 'failed', reason: e.message, end: this.d.clock.now() }));
     });
     const o = await outcome;

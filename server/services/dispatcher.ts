@@ -1,9 +1,10 @@
 import { randomUUID } from 'node:crypto';
-import { eq, sql } from 'drizzle-orm';
+import { eq, inArray, sql } from 'drizzle-orm';
 import type { Logger } from 'pino';
 import type { Ack, BoardEvent, Command, RelayState } from '../contracts/protocol';
 import type { Clock } from '../clock';
 import type { Db } from '../db/client';
+import { batchedLoad, batchedWrite } from '../db/batch';
 import { commands, controllers, sites, zones } from '../db/schema/index';
 import { usableSupply } from '../domain/hydraulics';
 import { conflict, notFound } from '../errors';
@@ -82,6 +83,33 @@ export class ValveDispatcher implements ValveListener {
 
   constructor(private d: DispatcherDeps) {}
 
+  // Thousands of zones starting in the same second share their queries (see db/batch.ts).
+  private zoneInfo = batchedLoad(async (ids: readonly number[]) => {
+    const rows = await this.d.db
+      .select({ zone: zones, controller: controllers, site: sites })
+      .from(zones)
+      .innerJoin(controllers, eq(zones.controllerId, controllers.id))
+      .innerJoin(sites, eq(controllers.siteId, sites.id))
+      .where(inArray(zones.id, [...ids]));
+    return new Map(rows.map((r) => [r.zone.id, r]));
+  });
+
+  private recordCommand = batchedWrite((rows: readonly (typeof commands.$inferInsert)[]) => this.d.db.insert(commands).values([...rows]));
+
+  private markSent = batchedWrite((xs: readonly { id: string; attempts: number; at: Date }[]) =>
+    this.d.db.execute(sql`
+      update commands c set state = 'sent', attempts = v.attempts, sent_at = v.at
+      from unnest(${pgArray(xs.map((x) => x.id))}::uuid[], ${pgArray(xs.map((x) => x.attempts))}::int[], ${pgArray(xs.map((x) => x.at.toISOString()))}::timestamptz[]) as v(id, attempts, at)
+      where c.id = v.id`),
+  );
+
+  private markAcked = batchedWrite((xs: readonly { id: string; at: Date }[]) =>
+    this.d.db.execute(sql`
+      update commands c set state = 'acked', acked_at = v.at
+      from unnest(${pgArray(xs.map((x) => x.id))}::uuid[], ${pgArray(xs.map((x) => x.at.toISOString()))}::timestamptz[]) as v(id, at)
+      where c.id = v.id`),
+  );
+
   /** Commands waiting for an acknowledgement right now. */
   get inFlight(): number {
     return this.acks.size;
@@ -95,12 +123,7 @@ export class ValveDispatcher implements ValveListener {
 
   /** Open (or extend) a zone for `seconds`. Throws 404 / 409 for an unknown zone or an offline controller. */
   async start(req: StartRequest): Promise<StartResult> {
-    const [row] = await this.d.db
-      .select({ zone: zones, controller: controllers, site: sites })
-      .from(zones)
-      .innerJoin(controllers, eq(zones.controllerId, controllers.id))
-      .innerJoin(sites, eq(controllers.siteId, sites.id))
-      .where(eq(zones.id, req.zoneId));
+    const row = await this.zoneInfo(req.zoneId);
     if (!row) throw notFound('Zone');
     const board = this.d.fleet.getById(row.controller.id) ?? (await this.d.fleet.refresh(row.controller.id));
     if (!board || !board.online) {
@@ -120,7 +143,7 @@ export class ValveDispatcher implements ValveListener {
       zoneId: req.zoneId, controllerId: board.controllerId, relay: row.zone.relay, flowLpm, commandId,
       seconds: req.seconds, origin: req.origin, actor: req.actor ?? null, onOutcome: req.onOutcome, queuedAt: this.d.clock.now(),
     };
-    await this.d.db.insert(commands).values({
+    await this.recordCommand({
       id: commandId, controllerId: board.controllerId, zoneId: req.zoneId, op: 'open', relay: row.zone.relay,
       maxOnSeconds: req.seconds + this.d.failsafeMarginS, origin: req.origin, requestedBy: req.actor?.userId || null, state: 'queued',
     });
@@ -182,7 +205,7 @@ export class ValveDispatcher implements ValveListener {
       if (a.state === 'closing' || a.done) {
         // Stopped while the open was on its way: the board did open it, and the close already
         // sent decides from here (it finishes the run, or the board's failsafe closes the valve).
-        await this.d.db.update(commands).set({ state: 'acked', ackedAt: new Date(now) }).where(eq(commands.id, a.commandId));
+        await this.markAcked({ id: a.commandId, at: new Date(now) });
         this.emitCommand(board, a, 'acked');
         if (!extend && !a.done) a.onOutcome?.({ kind: 'opened', at: now });
         return;
@@ -193,7 +216,7 @@ export class ValveDispatcher implements ValveListener {
       if (r) r.plannedEnd = a.plannedEnd;
       if (a.closeTimer) this.d.clock.clearTimeout(a.closeTimer);
       a.closeTimer = this.d.clock.setTimeout(() => void this.close(a.zoneId, board.siteId, 'completed'), a.seconds * 1000);
-      await this.d.db.update(commands).set({ state: 'acked', ackedAt: new Date(now) }).where(eq(commands.id, a.commandId));
+      await this.markAcked({ id: a.commandId, at: new Date(now) });
       this.emitCommand(board, a, 'acked');
       if (!extend) a.onOutcome?.({ kind: 'opened', at: now });
       if (a.actor) await recordAudit(this.d.db, a.actor, { action: 'valve.open', entityType: 'zone', entityId: a.zoneId, siteId: board.siteId, outcome: 'acked', after: { seconds: a.seconds, commandId: a.commandId } });
@@ -266,11 +289,7 @@ export class ValveDispatcher implements ValveListener {
       await this.d.send(board.serial, cmd).catch((e) => {
         lastErr = `could not send: ${(e as Error).message}`;
       });
-      await this.d.db
-        .update(commands)
-        .set({ state: 'sent', attempts: attempt + 1, sentAt: new Date(this.d.clock.now()) })
-        .where(eq(commands.id, cmd.id))
-        .catch(() => {});
+      await this.markSent({ id: cmd.id, attempts: attempt + 1, at: new Date(this.d.clock.now()) }).catch(() => {});
       const a = await ack;
       // the relay is on by now (or never will be from this command): the next one waits the stagger from here
       if (energise) this.nextSlot.set(board.controllerId, Math.max(this.nextSlot.get(board.controllerId) ?? 0, this.d.clock.now() + board.staggerMs));
@@ -310,9 +329,9 @@ export class ValveDispatcher implements ValveListener {
     }
     const id = randomUUID();
     try {
-      await this.d.db.insert(commands).values({ id, controllerId: board.controllerId, zoneId, op: 'close', relay, origin: a?.origin ?? 'manual', requestedBy: actor?.userId || null, state: 'queued' });
+      await this.recordCommand({ id, controllerId: board.controllerId, zoneId, op: 'close', relay, origin: a?.origin ?? 'manual', requestedBy: actor?.userId || null, state: 'queued' });
       await this.sendWithAck(board, () => ({ v: 1, id, op: 'close', relay, at: new Date(this.d.clock.now()).toISOString() }), false);
-      await this.d.db.update(commands).set({ state: 'acked', ackedAt: new Date(this.d.clock.now()) }).where(eq(commands.id, id));
+      await this.markAcked({ id, at: new Date(this.d.clock.now()) });
       if (actor) await recordAudit(this.d.db, actor, { action: 'valve.close', entityType: 'zone', entityId: zoneId, siteId, outcome: 'acked' });
     } catch (err) {
       // The board's failsafe will still close it at the commanded maximum on-time.
@@ -500,3 +519,6 @@ export class ValveDispatcher implements ValveListener {
 }
 
 const round1 = (v: number) => Math.round(v * 10) / 10;
+
+/** A JavaScript array as one PostgreSQL array parameter. */
+const pgArray = <T>(xs: T[]) => sql.param(xs);

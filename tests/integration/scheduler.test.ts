@@ -249,7 +249,7 @@ describe('restarts and several instances', { timeout: 90_000 }, () => {
       const a2 = await zoneId(w.tdb, 'A2 beds');
       const p = await addProgram(w.tdb, w.f.siteA, 'Twice?', ['08:00', '08:30', '09:00'], [[a2, 1]]);
       await w.runUntil(local('2026-06-03T09:10'), 60_000);
-      expect(w.rt.services.scheduler.isLeader !== second.services.scheduler.isLeader).toBe(true);
+      expect(w.rt.services.scheduler.isLeader !== second.services.scheduler.isLeader, 'exactly one instance dispatches').toBe(true);
       const rs = await runsOf(w.tdb, p);
       expect(rs.map((r) => DateTime.fromJSDate(r.scheduledFor, { zone: tz }).toFormat('HH:mm'))).toEqual(['08:00', '08:30', '09:00']);
       const zr = await w.tdb.db.select().from(zoneRuns).where(and(eq(zoneRuns.zoneId, a2), sql`${zoneRuns.runId} in (select id from runs where program_id = ${p})`));
@@ -260,7 +260,7 @@ describe('restarts and several instances', { timeout: 90_000 }, () => {
       if (leaderWasFirst) await w.rt.services.scheduler.stop();
       else await second.services.scheduler.stop();
       await w.runFor(3 * 60_000, 30_000);
-      expect(other.services.scheduler.isLeader).toBe(true);
+      expect(other.services.scheduler.isLeader, 'the other instance took over').toBe(true);
     } finally {
       await second.close();
     }

@@ -1,0 +1,33 @@
+import DataLoader from 'dataloader';
+
+/**
+ * Calls made in the same turn of the event loop go to the database together. When thousands of
+ * zones start in the same second, each step of their start (look up, record, mark) is one query
+ * for all of them instead of one each. Timers that fire together run in one timers phase, so the
+ * batch is cut at the next check phase (setImmediate), not at the next microtask.
+ */
+const schedule = (cb: () => void) => void setImmediate(cb);
+
+/** A write that is batched: resolves when the query carrying it has committed; rejects with it. */
+export function batchedWrite<T>(write: (items: readonly T[]) => Promise<unknown>, maxBatchSize = 2000): (item: T) => Promise<void> {
+  const loader = new DataLoader<T, void, T>(
+    async (items) => {
+      await write(items);
+      return items.map(() => undefined);
+    },
+    { cache: false, maxBatchSize, batchScheduleFn: schedule },
+  );
+  return (item) => loader.load(item);
+}
+
+/** A lookup by key that is batched; `null` for a key with no row. */
+export function batchedLoad<K, V>(load: (keys: readonly K[]) => Promise<Map<K, V>>, maxBatchSize = 2000): (key: K) => Promise<V | null> {
+  const loader = new DataLoader<K, V | null, K>(
+    async (keys) => {
+      const found = await load(keys);
+      return keys.map((k) => found.get(k) ?? null);
+    },
+    { cache: false, maxBatchSize, batchScheduleFn: schedule },
+  );
+  return (key) => loader.load(key);
+}
