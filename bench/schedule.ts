@@ -47,6 +47,16 @@ export async function benchSchedule(opts: { zones?: number; staggerMs?: number }
     for (let i = 1; i < log.length; i++) minGap = Math.min(minGap, log[i] - log[i - 1]);
   }
   const opened = lateness.length;
+  // Where the time went, from the records: run created, command recorded, sent, acknowledged (ms after the planned start).
+  const stages = (await db.db.execute(sql`
+    select
+      percentile_cont(0.5) within group (order by extract(epoch from r.created_at - r.scheduled_for) * 1000) as run_created,
+      percentile_cont(0.5) within group (order by extract(epoch from c.created_at - r.scheduled_for) * 1000) as command_recorded,
+      percentile_cont(0.5) within group (order by extract(epoch from c.sent_at - r.scheduled_for) * 1000) as sent_p50,
+      percentile_cont(0.99) within group (order by extract(epoch from c.sent_at - r.scheduled_for) * 1000) as sent_p99,
+      percentile_cont(0.5) within group (order by extract(epoch from c.acked_at - r.scheduled_for) * 1000) as acked_p50
+    from zone_runs z join runs r on r.id = z.run_id join commands c on c.id = z.command_id`)).rows[0];
+  if (process.env.BENCH_VERBOSE) console.error('schedule stages (ms after planned start, p50):', JSON.stringify(stages));
   await sleep(50_000); // let the one-minute runs end before closing
   await sim.close();
   await rt.close();

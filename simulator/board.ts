@@ -262,35 +262,38 @@ export class SimBoard {
     // A command delivered twice (QoS 1) is answered again, not carried out again.
     const seen = this.recent.get(cmd.id);
     if (seen) return this.uplink.ack(cmd.id, seen.ok, seen.error);
-    const outcome = this.execute(cmd);
+    // The acknowledgement goes first, then the events and state the command caused (docs/protocol.md).
+    const reports: (() => void)[] = [];
+    const outcome = this.execute(cmd, reports);
     this.recent.set(cmd.id, outcome);
     if (this.recent.size > RECENT_COMMANDS) this.recent.delete(this.recent.keys().next().value as string);
     this.uplink.ack(cmd.id, outcome.ok, outcome.error);
+    for (const report of reports) report();
   }
 
-  private execute(cmd: Command): Outcome {
+  private execute(cmd: Command, later: (() => void)[]): Outcome {
     if (cmd.op === 'close_all') {
       const stuck: number[] = [];
       let touched = false;
       for (const r of this.bank.openRelays()) {
         const res = this.bank.close(r, 'command', cmd.id);
         touched = true;
-        if (res === 'closed') this.uplink.event(r, false, 'command', cmd.id);
+        if (res === 'closed') later.push(() => this.uplink.event(r, false, 'command', cmd.id));
         else if (res === 'stuck') stuck.push(r);
       }
-      if (touched) this.uplink.state();
+      if (touched) later.push(() => this.uplink.state());
       return stuck.length ? { ok: false, error: `relay ${stuck.join(', ')} did not close: valve stuck` } : { ok: true };
     }
     if (!this.bank.has(cmd.relay)) return { ok: false, error: `relay ${cmd.relay} does not exist: this board has ${this.bank.count} relays` };
     if (cmd.op === 'open') {
-      if (this.bank.open(cmd.relay, cmd.maxOnSeconds * 1000, cmd.id)) this.uplink.event(cmd.relay, true, 'command', cmd.id);
-      this.uplink.state();
+      if (this.bank.open(cmd.relay, cmd.maxOnSeconds * 1000, cmd.id)) later.push(() => this.uplink.event(cmd.relay, true, 'command', cmd.id));
+      later.push(() => this.uplink.state());
       return { ok: true };
     }
     const res = this.bank.close(cmd.relay, 'command', cmd.id);
     if (res === 'already_closed') return { ok: true };
-    if (res === 'closed') this.uplink.event(cmd.relay, false, 'command', cmd.id);
-    this.uplink.state();
+    if (res === 'closed') later.push(() => this.uplink.event(cmd.relay, false, 'command', cmd.id));
+    later.push(() => this.uplink.state());
     return res === 'closed' ? { ok: true } : { ok: false, error: `relay ${cmd.relay} did not close: valve stuck` };
   }
 

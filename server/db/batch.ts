@@ -8,26 +8,24 @@ import DataLoader from 'dataloader';
  */
 const schedule = (cb: () => void) => void setImmediate(cb);
 
+/** `run` gets every item of the batch and answers one result per item, in order. */
+export function batched<T, R>(run: (items: readonly T[]) => Promise<R[]>, maxBatchSize = 2000): (item: T) => Promise<R> {
+  const loader = new DataLoader<T, R, T>(async (items) => run(items), { cache: false, maxBatchSize, batchScheduleFn: schedule });
+  return (item) => loader.load(item);
+}
+
 /** A write that is batched: resolves when the query carrying it has committed; rejects with it. */
 export function batchedWrite<T>(write: (items: readonly T[]) => Promise<unknown>, maxBatchSize = 2000): (item: T) => Promise<void> {
-  const loader = new DataLoader<T, void, T>(
-    async (items) => {
-      await write(items);
-      return items.map(() => undefined);
-    },
-    { cache: false, maxBatchSize, batchScheduleFn: schedule },
-  );
-  return (item) => loader.load(item);
+  return batched(async (items: readonly T[]) => {
+    await write(items);
+    return items.map(() => undefined);
+  }, maxBatchSize);
 }
 
 /** A lookup by key that is batched; `null` for a key with no row. */
 export function batchedLoad<K, V>(load: (keys: readonly K[]) => Promise<Map<K, V>>, maxBatchSize = 2000): (key: K) => Promise<V | null> {
-  const loader = new DataLoader<K, V | null, K>(
-    async (keys) => {
-      const found = await load(keys);
-      return keys.map((k) => found.get(k) ?? null);
-    },
-    { cache: false, maxBatchSize, batchScheduleFn: schedule },
-  );
-  return (key) => loader.load(key);
+  return batched(async (keys: readonly K[]) => {
+    const found = await load(keys);
+    return keys.map((k) => found.get(k) ?? null);
+  }, maxBatchSize);
 }

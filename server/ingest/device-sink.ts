@@ -3,6 +3,7 @@ import { createHash } from 'node:crypto';
 import { eq, sql } from 'drizzle-orm';
 import type { Logger } from 'pino';
 import type { DeviceSink } from '../../gateway/types';
+import { batched } from '../db/batch';
 import type { Ack, BoardEvent, BoardStatus, RelayState, Sample } from '../contracts/protocol';
 import type { Clock } from '../clock';
 import type { Db } from '../db/client';
@@ -39,6 +40,12 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
   const { db, fleet, writer, bus, log } = deps;
   let listener = deps.listener;
   const verified = new Set<string>();
+  // Events from many boards at once (a schedule opening thousands of zones) share one insert.
+  const storeEvent = batched(async (rows: readonly (typeof valveEvents.$inferInsert)[]) => {
+    const got = await db.insert(valveEvents).values([...rows]).onConflictDoNothing().returning({ controllerId: valveEvents.controllerId, seq: valveEvents.seq });
+    const keys = new Set(got.map((g) => `${g.controllerId}:${g.seq}`));
+    return rows.map((r) => keys.has(`${r.controllerId}:${r.seq}`));
+  });
 
   async function board(serial: string): Promise<BoardLive | null> {
     return fleet.get(serial) ?? (await fleet.refreshSerial(serial));
@@ -124,16 +131,12 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       const zoneId = b.zoneByRelay.get(e.relay) ?? null;
       // One row per board and sequence number: a resend (or a second instance's copy) stores nothing.
       // The board's stored sequence number moves with its readings only (see ReadingWriter).
-      const stored = await db
-        .insert(valveEvents)
-        .values({
-          controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open, source: e.source,
-          commandId: e.cmdId && /^[0-9a-f-]{36}$/.test(e.cmdId) ? e.cmdId : null,
-          seq: e.seq, boardAt: new Date(e.at), at, receivedAt,
-        })
-        .onConflictDoNothing()
-        .returning({ id: valveEvents.id });
-      if (!stored.length) return;
+      const stored = await storeEvent({
+        controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open, source: e.source,
+        commandId: e.cmdId && /^[0-9a-f-]{36}$/.test(e.cmdId) ? e.cmdId : null,
+        seq: e.seq, boardAt: new Date(e.at), at, receivedAt,
+      });
+      if (!stored) return;
       b.lastSeenAt = receivedAt.getTime();
       const r = b.relays[e.relay - 1];
       if (r) {

@@ -47,21 +47,21 @@ describe('simulated relay board over a real broker', () => {
     expect(server.of(s.serial).every((m) => m.valid)).toBe(true);
   });
 
-  it('opens a relay on command and publishes event, then state, then ack', async () => {
+  it('opens a relay on command and publishes the ack first, then the event and the state', async () => {
     const s = spec();
     const b = await boot(s);
     const before = server.of(s.serial).length;
     const id = await server.command(s.serial, { op: 'open', relay: 2, maxOnSeconds: 90 });
-    await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === id), 'the ack');
+    await waitFor(() => server.of(s.serial, 'state').find((m) => m.json.relays[1].cmdId === id), 'the state after the command');
     const after = server.of(s.serial).slice(before);
-    expect(after.map((m) => m.kind)).toEqual(['event', 'state', 'ack']);
+    expect(after.map((m) => m.kind)).toEqual(['ack', 'event', 'state']);
     expect(after.every((m) => m.valid)).toBe(true);
-    const [event, state, ack] = after.map((m) => m.json);
+    const [ack, event, state] = after.map((m) => m.json);
     expect(event).toMatchObject({ kind: 'relay', relay: 2, open: true, source: 'command', cmdId: id });
     expect(state.relays[1]).toMatchObject({ open: true, cmdId: id });
     expect(Date.parse(state.relays[1].closesAt) - Date.parse(state.relays[1].since)).toBe(90_000);
     expect(ack).toMatchObject({ id, ok: true });
-    expect(event.seq < state.seq && state.seq < ack.seq).toBe(true);
+    expect(ack.seq < event.seq && event.seq < state.seq).toBe(true);
     expect(b.relayStates()[1].open).toBe(true);
     expect(b.energizeLog.map((e) => e.relay)).toEqual([2]);
   });
@@ -99,17 +99,18 @@ describe('simulated relay board over a real broker', () => {
     expect(b.relayStates()[0].open).toBe(false);
   });
 
-  it('closes every open relay on close_all, one event each before one state and the ack', async () => {
+  it('closes every open relay on close_all: the ack, then one event each and one state', async () => {
     const s = spec();
     const b = await boot(s);
     for (const relay of [1, 3]) await server.command(s.serial, { op: 'open', relay, maxOnSeconds: 60 });
-    await waitFor(() => server.of(s.serial, 'ack').length === 2, 'two acks');
+    await waitFor(() => server.of(s.serial, 'state').find((m) => m.json.relays[0].open && m.json.relays[2].open), 'both relays open');
     const before = server.of(s.serial).length;
     const id = await server.command(s.serial, { op: 'close_all' });
-    await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === id), 'the close_all ack');
+    await waitFor(() => server.of(s.serial).slice(before).find((m) => m.kind === 'state' && m.json.relays.every((r: { open: boolean }) => !r.open)), 'the state after close_all');
     const after = server.of(s.serial).slice(before);
-    expect(after.map((m) => m.kind)).toEqual(['event', 'event', 'state', 'ack']);
-    expect(after.slice(0, 2).map((m) => [m.json.relay, m.json.open, m.json.cmdId])).toEqual([[1, false, id], [3, false, id]]);
+    expect(after.map((m) => m.kind)).toEqual(['ack', 'event', 'event', 'state']);
+    expect(after[0].json).toMatchObject({ id, ok: true });
+    expect(after.slice(1, 3).map((m) => [m.json.relay, m.json.open, m.json.cmdId])).toEqual([[1, false, id], [3, false, id]]);
     expect(b.relayStates().every((r) => !r.open)).toBe(true);
   });
 
