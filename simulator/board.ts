@@ -74,6 +74,9 @@ export class SimBoard {
   private sampleTimer: unknown = null;
   private nextSampleMs = 0;
   private recent = new Map<string, Outcome>();
+  /** Opens waiting for the start-up gap the server asked for (minGapMs), by relay. */
+  private waitingOpens = new Map<number, { cmd: Extract<Command, { op: 'open' }>; timer: unknown }>();
+  private promisedEnergiseAt = -Infinity;
   private samplesTaken = 0;
 
   constructor(
@@ -262,12 +265,61 @@ export class SimBoard {
     // A command delivered twice (QoS 1) is answered again, not carried out again.
     const seen = this.recent.get(cmd.id);
     if (seen) return this.uplink.ack(cmd.id, seen.ok, seen.error);
+    if ([...this.waitingOpens.values()].some((w) => w.cmd.id === cmd.id)) return; // answered when it is carried out
+    // A close cancels an open of the same relay still waiting for its start-up gap.
+    if (cmd.op !== 'open') {
+      for (const [relay, w] of [...this.waitingOpens]) {
+        if (cmd.op === 'close_all' || cmd.relay === relay) {
+          this.clock.clearTimeout(w.timer);
+          this.waitingOpens.delete(relay);
+          this.answer(w.cmd.id, { ok: false, error: 'cancelled by a later close' }, []);
+        }
+      }
+    }
+    if (cmd.op === 'open' && cmd.minGapMs && this.bank.has(cmd.relay) && !this.bank.isOpen(cmd.relay)) {
+      const now = this.clock.now();
+      const at = Math.max(now, this.lastEnergiseAt() + cmd.minGapMs);
+      this.promisedEnergiseAt = Math.max(this.promisedEnergiseAt, at);
+      if (at > now) {
+        const prev = this.waitingOpens.get(cmd.relay);
+        if (prev) {
+          this.clock.clearTimeout(prev.timer);
+          this.answer(prev.cmd.id, { ok: false, error: 'replaced by a later open' }, []);
+        }
+        // Timers may fire a millisecond early against the wall clock: wait out the remainder.
+        const fire = () => {
+          const log = this.bank.energizeLog;
+          const due = Math.max(at, log.length ? log[log.length - 1].atMs + cmd.minGapMs! : -Infinity);
+          const left = due - this.clock.now();
+          if (left > 0) return void (this.waitingOpens.get(cmd.relay)!.timer = this.clock.setTimeout(fire, left));
+          this.waitingOpens.delete(cmd.relay);
+          if (!this.powered) return;
+          this.carryOut(cmd);
+        };
+        this.waitingOpens.set(cmd.relay, { cmd, timer: this.clock.setTimeout(fire, at - now) });
+        return;
+      }
+    }
+    this.carryOut(cmd);
+  }
+
+  /** The last energisation, done or promised to a waiting open. */
+  private lastEnergiseAt(): number {
+    const log = this.bank.energizeLog;
+    return Math.max(log.length ? log[log.length - 1].atMs : -Infinity, this.promisedEnergiseAt);
+  }
+
+  private carryOut(cmd: Command): void {
     // The acknowledgement goes first, then the events and state the command caused (docs/protocol.md).
     const reports: (() => void)[] = [];
     const outcome = this.execute(cmd, reports);
-    this.recent.set(cmd.id, outcome);
+    this.answer(cmd.id, outcome, reports);
+  }
+
+  private answer(id: string, outcome: Outcome, reports: (() => void)[]): void {
+    this.recent.set(id, outcome);
     if (this.recent.size > RECENT_COMMANDS) this.recent.delete(this.recent.keys().next().value as string);
-    this.uplink.ack(cmd.id, outcome.ok, outcome.error);
+    this.uplink.ack(id, outcome.ok, outcome.error);
     for (const report of reports) report();
   }
 

@@ -41,11 +41,19 @@ const relayNo = z.number().int().min(1).max(8);
 const seq = z.number().int().min(0).max(2 ** 53 - 1);
 const v = z.literal(PROTOCOL_VERSION);
 
+/** Longest start-up gap a command may ask for between two relays. */
+export const MAX_GAP_MS = 60_000;
+
 /** Longest a command may hold a relay open; the board refuses more. */
 export const MAX_ON_SECONDS = 4 * 3600;
 
 export const commandSchema = z.discriminatedUnion('op', [
-  z.strictObject({ v, id: z.string().min(8).max(64), op: z.literal('open'), relay: relayNo, maxOnSeconds: z.number().int().min(1).max(MAX_ON_SECONDS), at: isoTime }),
+  z.strictObject({
+    v, id: z.string().min(8).max(64), op: z.literal('open'), relay: relayNo, maxOnSeconds: z.number().int().min(1).max(MAX_ON_SECONDS),
+    /** The board energises this relay no sooner than this long after it last energised any relay (it waits, then acknowledges). */
+    minGapMs: z.number().int().min(0).max(MAX_GAP_MS).optional(),
+    at: isoTime,
+  }),
   z.strictObject({ v, id: z.string().min(8).max(64), op: z.literal('close'), relay: relayNo, at: isoTime }),
   z.strictObject({ v, id: z.string().min(8).max(64), op: z.literal('close_all'), at: isoTime }),
 ]);

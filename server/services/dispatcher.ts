@@ -65,9 +65,6 @@ export type DispatcherDeps = {
   failsafeMarginS: number;
 };
 
-/** Extra time kept between two energisations beyond the controller's stagger, for delivery jitter. */
-const STAGGER_SAFETY_MS = 30;
-
 /**
  * Decides when each valve opens. Relays on one controller are energised at least the
  * controller's stagger apart; a controller never has more zones open than its cap, and a site
@@ -181,7 +178,7 @@ export class ValveDispatcher implements ValveListener {
   private reserveSlot(board: BoardLive): number {
     const now = this.d.clock.now();
     const t = Math.max(now, this.nextSlot.get(board.controllerId) ?? 0);
-    this.nextSlot.set(board.controllerId, t + board.staggerMs + STAGGER_SAFETY_MS);
+    this.nextSlot.set(board.controllerId, t + board.staggerMs);
     return t;
   }
 
@@ -196,7 +193,7 @@ export class ValveDispatcher implements ValveListener {
       if (board.masterValveRelay && !extend) await this.ensureMaster(board, a.seconds);
       else if (board.masterValveRelay) await this.ensureMaster(board, a.seconds);
       const cmd = (): Command => ({
-        v: 1, id: a.commandId, op: 'open', relay: a.relay, maxOnSeconds: a.seconds + this.d.failsafeMarginS, at: new Date(this.d.clock.now()).toISOString(),
+        v: 1, id: a.commandId, op: 'open', relay: a.relay, maxOnSeconds: a.seconds + this.d.failsafeMarginS, minGapMs: board.staggerMs, at: new Date(this.d.clock.now()).toISOString(),
       });
       const relayOpen = board.relays[a.relay - 1]?.open;
       await this.sendWithAck(board, cmd, !relayOpen && !extend);
@@ -240,39 +237,22 @@ export class ValveDispatcher implements ValveListener {
     const fresh = !m?.open && !board.relays[relay - 1]?.open;
     const id = randomUUID();
     const maxOn = Math.ceil((want - this.d.clock.now()) / 1000) + this.d.failsafeMarginS;
-    await this.sendWithAck(board, () => ({ v: 1, id, op: 'open', relay, maxOnSeconds: maxOn, at: new Date(this.d.clock.now()).toISOString() }), fresh);
+    await this.sendWithAck(board, () => ({ v: 1, id, op: 'open', relay, maxOnSeconds: maxOn, minGapMs: board.staggerMs, at: new Date(this.d.clock.now()).toISOString() }), fresh);
     this.masters.set(board.controllerId, { open: true, plannedEnd: want });
-  }
-
-  /** Send a command and wait for its acknowledgement, retrying on silence. `energise` reserves a stagger slot first. */
-  /** One energising command at a time per controller: the next waits for the previous one's acknowledgement. */
-  private energiseLocks = new Map<number, Promise<void>>();
-
-  private async withEnergiseLock<T>(board: BoardLive, fn: () => Promise<T>): Promise<T> {
-    const id = board.controllerId;
-    const prev = this.energiseLocks.get(id) ?? Promise.resolve();
-    let release!: () => void;
-    const mine = new Promise<void>((r) => (release = r));
-    const chained = prev.then(() => mine);
-    this.energiseLocks.set(id, chained);
-    await prev;
-    try {
-      return await fn();
-    } finally {
-      release();
-      if (this.energiseLocks.get(id) === chained) this.energiseLocks.delete(id);
-    }
   }
 
   /**
    * Send a command and wait for its acknowledgement, retrying on silence. An energising command
-   * waits its turn on the controller and for the stagger after the previous relay's acknowledged
-   * start, so two relays are never energised closer than the stagger, whatever the network does.
+   * waits for its slot on the controller: slots are the controller's stagger apart, and the open
+   * command carries the stagger as `minGapMs`, so the board itself never energises two relays
+   * closer than that, whatever the network does to the timing. So the next relay's command need
+   * not wait for this one's acknowledgement, and a board's zones start the stagger apart.
    */
   private async sendWithAck(board: BoardLive, make: () => Command, energise: boolean): Promise<void> {
     const attempts = 1 + this.d.retries;
     let lastErr = 'no acknowledgement';
-    const once = async (attempt: number): Promise<Ack | null> => {
+    for (let i = 0; i < attempts; i++) {
+      if (this.stopped) throw new Error('server stopping');
       if (energise) await this.waitUntil(this.reserveSlot(board));
       const cmd = make();
       const ack = new Promise<Ack | null>((resolve) => {
@@ -289,15 +269,8 @@ export class ValveDispatcher implements ValveListener {
       await this.d.send(board.serial, cmd).catch((e) => {
         lastErr = `could not send: ${(e as Error).message}`;
       });
-      await this.markSent({ id: cmd.id, attempts: attempt + 1, at: new Date(this.d.clock.now()) }).catch(() => {});
+      await this.markSent({ id: cmd.id, attempts: i + 1, at: new Date(this.d.clock.now()) }).catch(() => {});
       const a = await ack;
-      // the relay is on by now (or never will be from this command): the next one waits the stagger from here
-      if (energise) this.nextSlot.set(board.controllerId, Math.max(this.nextSlot.get(board.controllerId) ?? 0, this.d.clock.now() + board.staggerMs));
-      return a;
-    };
-    for (let i = 0; i < attempts; i++) {
-      if (this.stopped) throw new Error('server stopping');
-      const a = energise ? await this.withEnergiseLock(board, () => once(i)) : await once(i);
       if (a?.ok) return;
       if (a && !a.ok) throw new Error(`the board refused: ${a.error ?? 'no reason given'}`);
       lastErr = `no acknowledgement from ${board.name} after ${i + 1} tries`;

@@ -114,6 +114,32 @@ describe('simulated relay board over a real broker', () => {
     expect(b.relayStates().every((r) => !r.open)).toBe(true);
   });
 
+  it('keeps the start-up gap a command asks for, even when the commands arrive together', async () => {
+    const s = spec();
+    const b = await boot(s);
+    const ids = await Promise.all([1, 2, 3].map((relay) => server.command(s.serial, { op: 'open', relay, maxOnSeconds: 60, minGapMs: 150 })));
+    await waitFor(() => ids.every((id) => server.of(s.serial, 'ack').some((m) => m.json.id === id)), 'three acks');
+    const log = b.energizeLog.map((e) => e.atMs);
+    expect(log).toHaveLength(3);
+    for (let i = 1; i < log.length; i++) expect(log[i] - log[i - 1]).toBeGreaterThanOrEqual(150);
+    // each acknowledgement came once its relay was on
+    expect(server.of(s.serial, 'ack').filter((m) => ids.includes(m.json.id)).every((m) => m.json.ok)).toBe(true);
+  });
+
+  it('cancels an open still waiting for its gap when a close for that relay comes first', async () => {
+    const s = spec();
+    const b = await boot(s);
+    await server.command(s.serial, { op: 'open', relay: 1, maxOnSeconds: 60, minGapMs: 2000 });
+    const waiting = await server.command(s.serial, { op: 'open', relay: 2, maxOnSeconds: 60, minGapMs: 2000 });
+    await sleep(100);
+    await server.command(s.serial, { op: 'close', relay: 2 });
+    const ack = await waitFor(() => server.of(s.serial, 'ack').find((m) => m.json.id === waiting), 'the waiting open answered');
+    expect(ack.json).toMatchObject({ ok: false, error: 'cancelled by a later close' });
+    await sleep(2200);
+    expect(b.relayStates()[1].open).toBe(false);
+    expect(b.energizeLog.map((e) => e.relay)).toEqual([1]);
+  });
+
   it('answers a bad command that has an id with ack ok:false, and ignores one without an id', async () => {
     const s = spec();
     await boot(s);
