@@ -318,13 +318,21 @@ describe('the site plan', () => {
     const surface = page.locator('[data-test=plan-surface]');
     await surface.scrollIntoViewIfNeeded();
     await dragMarker(page, east, 0.7, 0.2);
-    await dragMarker(page, cblock, 0.25, 0.66);
+    await dragMarker(page, cblock, 0.5, 0.9);
+    expect(Number(await page.locator(`[data-test=plan-marker-${cblock}]`).getAttribute('data-y'))).toBeCloseTo(0.9, 1);
     const marker = page.locator(`[data-test=plan-marker-${east}]`);
     expect(Number(await marker.getAttribute('data-x'))).toBeCloseTo(0.7, 1);
     expect(Number(await marker.getAttribute('data-y'))).toBeCloseTo(0.2, 1);
     await shoot(page.locator('[data-test=site-plan]'), 'devices-plan-editing-desktop');
+
+    // On a phone, with a finger: touch events become pointer events on the marker.
     await page.setViewportSize(PHONE);
     await page.waitForTimeout(400);
+    await surface.scrollIntoViewIfNeeded();
+    await touchDrag(page, cblock, 0.25, 0.66);
+    const cMarker = page.locator(`[data-test=plan-marker-${cblock}]`);
+    expect(Number(await cMarker.getAttribute('data-x'))).toBeCloseTo(0.25, 1);
+    expect(Number(await cMarker.getAttribute('data-y'))).toBeCloseTo(0.66, 1);
     await shoot(page.locator('[data-test=site-plan]'), 'devices-plan-editing-phone');
     await page.setViewportSize(DESKTOP);
     await page.locator('[data-test=plan-save]').click();
@@ -360,6 +368,9 @@ describe('the site plan', () => {
     await page.waitForTimeout(300);
     await screenshot(page, 'devices-plan-live-desktop');
     await shoot(page.locator('[data-test=site-plan]'), 'devices-plan-live-section-desktop');
+    await shoot(page.locator('section[aria-labelledby=controllers-title]'), 'devices-controllers-desktop');
+    const table = await page.locator('[data-test=controllers-table] .q-table__middle').evaluate((e) => [e.scrollWidth, e.clientWidth]);
+    expect(table[0], 'the controllers table fits a 1280 px screen').toBeLessThanOrEqual(table[1]);
     await page.setViewportSize(PHONE);
     await page.waitForTimeout(400);
     await screenshot(page, 'devices-plan-live-phone');
@@ -382,6 +393,24 @@ async function dragMarker(page: Page, id: number, x: number, y: number): Promise
   await page.mouse.down();
   await page.mouse.move(box.x + box.width * x, box.y + box.height * y, { steps: 10 });
   await page.mouse.up();
+}
+
+/** The same with a finger, through Chromium's touch input (a phone has no mouse). */
+async function touchDrag(page: Page, id: number, x: number, y: number): Promise<void> {
+  const cdp = await page.context().newCDPSession(page);
+  await cdp.send('Emulation.setTouchEmulationEnabled', { enabled: true, maxTouchPoints: 1 });
+  const box = (await page.locator('[data-test=plan-surface]').boundingBox())!;
+  const m = (await page.locator(`[data-test=plan-marker-${id}]`).boundingBox())!;
+  const from = { x: m.x + m.width / 2, y: m.y + 20 };
+  const to = { x: box.x + box.width * x, y: box.y + box.height * y };
+  await cdp.send('Input.dispatchTouchEvent', { type: 'touchStart', touchPoints: [from] });
+  for (let i = 1; i <= 10; i++) {
+    const p = { x: from.x + ((to.x - from.x) * i) / 10, y: from.y + ((to.y - from.y) * i) / 10 };
+    await cdp.send('Input.dispatchTouchEvent', { type: 'touchMove', touchPoints: [p] });
+  }
+  await cdp.send('Input.dispatchTouchEvent', { type: 'touchEnd', touchPoints: [] });
+  await cdp.send('Emulation.setTouchEmulationEnabled', { enabled: false });
+  await cdp.detach();
 }
 
 const CSV_HEADER = 'controller_serial,relay,name,plant_type,soil_texture,head_type,head_count,flow_per_head_lpm,area_m2,root_depth_m,efficiency,moisture_threshold_pct,notes';
