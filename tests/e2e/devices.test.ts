@@ -112,6 +112,10 @@ describe('provisioning a controller', () => {
     const page = await newPage();
     await signIn(page, 'admin@runnel.test');
     await openSite(page, 'millbrook');
+    await page.setViewportSize(PHONE);
+    await page.waitForTimeout(400);
+    await shoot(page.locator('section[aria-labelledby=controllers-title]'), 'devices-controllers-admin-phone');
+    await page.setViewportSize(DESKTOP);
     await page.locator('[data-test=controller-provision]').click();
     const form = page.locator('[data-test=provision-form]');
     await form.locator('[data-test=provision-name]').fill('Pump house board');
@@ -132,6 +136,12 @@ describe('provisioning a controller', () => {
     expect(await dialog.locator('[data-test=wiring-caution]').innerText()).toMatch(/mains voltage.*qualified electrician under local codes/s);
     await page.waitForTimeout(300);
     await shootView(page, 'devices-secret-desktop');
+
+    // Copied exactly as shown.
+    await browser.context.grantPermissions(['clipboard-read', 'clipboard-write'], { origin: demo.rt.url });
+    await dialog.locator('[data-test=provision-copy]').click();
+    await dialog.locator('[data-test=provision-copy]', { hasText: 'Copied' }).waitFor();
+    expect(await page.evaluate(() => navigator.clipboard.readText())).toBe(secret);
 
     // The printable sheet, opened in a new tab by a form post carrying the secret.
     const [sheet] = await Promise.all([browser.context.waitForEvent('page'), dialog.locator('[data-test=provision-sheet]').click()]);
@@ -260,6 +270,20 @@ describe('the relay map', () => {
     await map.locator('[data-test=relay-row-5]').waitFor();
     expect(await map.locator('[data-test=relay-row-5]').innerText()).toContain('Picnic lawn');
     expect(await map.locator('[data-test=relay-row-4]').getAttribute('data-use')).toBe('free');
+
+    // Meanwhile a zone is wired to the other board: saving the stale map shows the server's word beside its relay.
+    const dock = await zoneId(page, 'Loading dock beds');
+    const north = Number(await controllerRow(page, 'FHG-QR-0201').getAttribute('data-controller-id'));
+    const moved = await page.evaluate(
+      async ({ dock, north }) =>
+        (await fetch(`/api/zones/${dock}`, { method: 'PATCH', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ controllerId: north, relay: 7 }) })).status,
+      { dock, north },
+    );
+    expect(moved).toBe(200);
+    await pick(page, map.locator('[data-test=relay-select-6]'), 'Loading dock beds');
+    await map.locator('[data-test=relay-map-save]').click();
+    expect(await map.locator('[data-test=relay-error-6]').innerText()).toMatch(new RegExp(`Zone ${dock} is not on this controller`));
+    expect(await map.locator('[data-test=relay-row-6]').evaluate((e) => e.classList.contains('has-error'))).toBe(true);
     await map.locator('[data-test=relay-map-close]').click();
     await map.waitFor({ state: 'detached' });
 
@@ -282,7 +306,9 @@ describe('the relay map', () => {
     expect(await map.locator('[data-test^=relay-select-]').count()).toBe(0);
     expect(await map.locator('[data-test=relay-map-save]').count()).toBe(0);
     expect(await map.locator('[data-test=relay-use-2]').innerText()).toContain('Lobby lawn');
-    expect(await map.locator('[data-test=relay-row-7]').getAttribute('data-use')).toBe('free');
+    // Relay 7 took the zone moved over in the test before; relay 8 is still free.
+    expect(await map.locator('[data-test=relay-use-7]').innerText()).toContain('Loading dock beds');
+    expect(await map.locator('[data-test=relay-row-8]').getAttribute('data-use')).toBe('free');
     await page.close();
   });
 });
@@ -298,6 +324,7 @@ describe('the site plan', () => {
     const progress = page.locator('[data-test=plan-progress]');
     await progress.and(page.locator('[data-state=done]')).waitFor();
     expect(await progress.getAttribute('data-value')).toBe('1.00');
+    await shoot(page.locator('[data-test=site-plan]'), 'devices-plan-uploaded-desktop');
     const img = page.locator('[data-test=plan-image]');
     await until(() => img.evaluate((e: HTMLImageElement) => e.complete && e.naturalWidth === 960), 5000);
 
@@ -467,7 +494,7 @@ describe('zones from a CSV file', () => {
 });
 
 describe('service records', () => {
-  it('lets a technician add a note with a photo to a zone, listed with its thumbnail', async () => {
+  it('lets a technician add a note with a photo to a zone, listed with its thumbnail, and a note to a board', async () => {
     const page = await newPage();
     await signIn(page, 'tech@runnel.test');
     await openSite(page, 'larkspur');
@@ -497,6 +524,26 @@ describe('service records', () => {
     await dialog.locator('[data-test=service-record-save]').click();
     await dialog.locator('[data-test=service-record-form] .q-field--error', { hasText: 'Say what was found or done' }).waitFor();
     expect(await dialog.locator('[data-test=service-record]').count()).toBe(1);
+
+    // A photo that is not one is refused by name, and nothing is stored.
+    await dialog.locator('[data-test=service-summary]').fill('Valve box lid cracked');
+    await dialog.locator('[data-test=service-photos]').setInputFiles({ name: 'lid.jpg', mimeType: 'image/jpeg', buffer: Buffer.from('not a photo at all') });
+    await dialog.locator('[data-test=service-record-save]').click();
+    expect(await dialog.locator('[data-test=service-error]').innerText()).toMatch(/Photo 1 \(lid\.jpg\)/);
+    expect(await dialog.locator('[data-test=service-record]').count()).toBe(1);
+    await dialog.locator('[data-test=service-cancel]').click();
+    await dialog.locator('[data-test=service-close]').click();
+    await dialog.waitFor({ state: 'detached' });
+
+    // The board's own log, a note without photos.
+    await controllerRow(page, 'FHG-LC-0101').locator('[data-test=controller-menu]').click();
+    await page.locator('[data-test=controller-service]').click();
+    await dialog.locator('[data-test=service-empty]').waitFor();
+    await dialog.locator('[data-test=service-record-add]').click();
+    await dialog.locator('[data-test=service-summary]').fill('Tightened the common wire at the terminal block');
+    await dialog.locator('[data-test=service-record-save]').click();
+    await dialog.locator('[data-test=service-record-summary]', { hasText: 'Tightened the common wire' }).waitFor();
+    expect(await dialog.locator('[data-test=service-photo]').count()).toBe(0);
     await dialog.locator('[data-test=service-close]').click();
     await dialog.waitFor({ state: 'detached' });
 
