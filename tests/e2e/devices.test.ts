@@ -448,6 +448,11 @@ describe('zones from a CSV file', () => {
     await signIn(page, 'manager@runnel.test');
     await openSite(page, 'larkspur');
     const before = (await apiGet<{ zones: unknown[] }>(page, `/api/sites/${siteId('larkspur')}`)).zones.length;
+    await page.setViewportSize(PHONE);
+    await page.locator('[data-test=zones-csv]').scrollIntoViewIfNeeded();
+    await page.waitForTimeout(300);
+    await shootView(page, 'devices-zones-header-phone');
+    await page.setViewportSize(DESKTOP);
     await page.locator('[data-test=zones-csv]').click();
     const dialog = page.locator('[data-test=csv-dialog]');
     await dialog.waitFor();
