@@ -18,6 +18,13 @@ export type UploadOptions = {
 export function uploadFile<T>(path: string, field: string, file: File, opts: UploadOptions = {}): Promise<T> {
   const body = new FormData();
   body.append(field, file, file.name);
+  return uploadForm<T>(path, body, opts);
+}
+
+/** POST a whole multipart form (text fields and files), with upload progress. */
+export function uploadForm<T>(path: string, body: FormData, opts: UploadOptions = {}): Promise<T> {
+  let size = 0;
+  for (const v of body.values()) size += typeof v === 'string' ? v.length : v.size;
   return new Promise<T>((resolve, reject) => {
     const xhr = new XMLHttpRequest();
     xhr.open('POST', `/api${path}`);
@@ -25,7 +32,7 @@ export function uploadFile<T>(path: string, field: string, file: File, opts: Upl
     xhr.setRequestHeader('Accept', 'application/json');
     xhr.responseType = 'text';
     xhr.upload.onprogress = (e) => {
-      const total = e.lengthComputable ? e.total : file.size;
+      const total = e.lengthComputable ? e.total : size;
       opts.onProgress?.({ loaded: e.loaded, total, fraction: total > 0 ? Math.min(1, e.loaded / total) : 1 });
     };
     xhr.onerror = () => fail(new ApiError(0, 'network', 'Cannot reach the Runnel server. Check the connection and try again.'));
@@ -38,7 +45,7 @@ export function uploadFile<T>(path: string, field: string, file: File, opts: Upl
         data = null;
       }
       if (xhr.status >= 200 && xhr.status < 300) {
-        opts.onProgress?.({ loaded: file.size, total: file.size, fraction: 1 });
+        opts.onProgress?.({ loaded: size, total: size, fraction: 1 });
         resolve(data as T);
         return;
       }
