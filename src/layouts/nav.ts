@@ -24,6 +24,11 @@ export const navEntries: readonly NavEntry[] = [
   { key: 'history', label: 'Run history', icon: 'history', to: { name: 'history' }, roles: everyone },
   { key: 'alerts', label: 'Alerts', icon: 'notifications', to: { name: 'alerts' }, roles: everyone },
   { key: 'calculator', label: 'Field calculator', icon: 'calculate', to: { name: 'calculator' }, roles: everyone },
+  { key: 'audit', label: 'Audit log', icon: 'manage_search', to: { name: 'audit' }, roles: everyone },
+  { key: 'people', label: 'People', icon: 'group', to: { name: 'people' }, roles: ['admin'] },
+  { key: 'tokens', label: 'API tokens', icon: 'key', to: { name: 'tokens' }, roles: ['admin'] },
+  { key: 'webhooks', label: 'Webhooks', icon: 'webhook', to: { name: 'webhooks' }, roles: ['admin'] },
+  { key: 'api', label: 'API reference', icon: 'menu_book', to: { name: 'api-docs' }, roles: ['admin', 'manager'] },
   { key: 'simulator', label: 'Simulated boards', icon: 'developer_board', to: { name: 'simulator' }, roles: ['admin'], demoOnly: true },
 ];
 

@@ -21,6 +21,24 @@ export const routes: RouteRecordRaw[] = [
     meta: { public: true, title: 'Sign in' },
   },
   {
+    path: '/forgot-password',
+    name: 'forgot-password',
+    component: () => import('../pages/ForgotPasswordPage.vue'),
+    meta: { public: true, title: 'Forgot your password?' },
+  },
+  {
+    path: '/reset-password',
+    name: 'reset-password',
+    component: () => import('../pages/ResetPasswordPage.vue'),
+    meta: { public: true, title: 'New password' },
+  },
+  {
+    path: '/accept-invite',
+    name: 'accept-invite',
+    component: () => import('../pages/AcceptInvitePage.vue'),
+    meta: { public: true, title: 'Set your password' },
+  },
+  {
     path: '/',
     component: () => import('../layouts/MainLayout.vue'),
     children: [
@@ -97,6 +115,11 @@ export const routes: RouteRecordRaw[] = [
       { path: 'calculator', name: 'calculator', component: () => import('../pages/CalculatorPage.vue'), meta: { title: 'Field calculator' } },
       { path: 'history', name: 'history', component: () => import('../pages/HistoryPage.vue'), meta: { title: 'Run history' } },
       { path: 'alerts', name: 'alerts', component: () => import('../pages/AlertsPage.vue'), meta: { title: 'Alerts' } },
+      { path: 'people', name: 'people', component: () => import('../pages/PeoplePage.vue'), meta: { title: 'People', roles: ['admin'] } },
+      { path: 'tokens', name: 'tokens', component: () => import('../pages/TokensPage.vue'), meta: { title: 'API tokens', roles: ['admin'] } },
+      { path: 'webhooks', name: 'webhooks', component: () => import('../pages/WebhooksPage.vue'), meta: { title: 'Webhooks', roles: ['admin'] } },
+      { path: 'audit', name: 'audit', component: () => import('../pages/AuditPage.vue'), meta: { title: 'Audit log' } },
+      { path: 'api-docs', name: 'api-docs', component: () => import('../pages/ApiDocsPage.vue'), meta: { title: 'API reference', roles: ['admin', 'manager'] } },
       // Programs, History, Alerts, Calculator … are added here with their pages (and in layouts/nav.ts).
       { path: ':rest(.*)*', name: 'not-found', component: () => import('../pages/NotFoundPage.vue'), meta: { title: 'Not found' } },
     ],

@@ -75,5 +75,6 @@ export const api = {
   post: <T>(path: string, body?: unknown, opts?: RequestOptions) => request<T>('POST', path, body ?? {}, opts),
   patch: <T>(path: string, body: unknown, opts?: RequestOptions) => request<T>('PATCH', path, body, opts),
   put: <T>(path: string, body: unknown, opts?: RequestOptions) => request<T>('PUT', path, body, opts),
-  delete: (path: string, opts?: RequestOptions) => request<void>('DELETE', path, undefined, opts),
+  /** Most deletes answer 204 (undefined); a few answer with what is left (T). */
+  delete: <T = void>(path: string, opts?: RequestOptions) => request<T>('DELETE', path, undefined, opts),
 };
