@@ -60,6 +60,10 @@ export function createApp(deps: AppDeps): BuiltApp {
         },
       },
       hsts: config.TRUST_PROXY,
+      // Under no-referrer a browser sends "Origin: null" on a form post and the CSRF guard refuses
+      // it; the setup-sheet form (secret in the body, new tab) needs the real origin. Same-origin
+      // still sends nothing to any other host.
+      referrerPolicy: { policy: 'same-origin' },
     }),
   );
   app.use(
