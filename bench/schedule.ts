@@ -56,7 +56,15 @@ export async function benchSchedule(opts: { zones?: number; staggerMs?: number }
       percentile_cont(0.99) within group (order by extract(epoch from c.sent_at - r.scheduled_for) * 1000) as sent_p99,
       percentile_cont(0.5) within group (order by extract(epoch from c.acked_at - r.scheduled_for) * 1000) as acked_p50
     from zone_runs z join runs r on r.id = z.run_id join commands c on c.id = z.command_id`)).rows[0];
-  if (process.env.BENCH_VERBOSE) console.error('schedule stages (ms after planned start, p50):', JSON.stringify(stages));
+  if (process.env.BENCH_VERBOSE) {
+    console.error('schedule stages (ms after planned start, p50):', JSON.stringify(stages));
+    const one = await db.db.execute(sql`
+      select c.relay, round(extract(epoch from c.created_at - r.scheduled_for) * 1000) as rec, round(extract(epoch from c.sent_at - r.scheduled_for) * 1000) as sent,
+        round(extract(epoch from c.acked_at - r.scheduled_for) * 1000) as acked
+      from zone_runs z join runs r on r.id = z.run_id join commands c on c.id = z.command_id
+      where c.controller_id = (select min(controller_id) from commands) order by c.sent_at`);
+    console.error('one board:', JSON.stringify(one.rows));
+  }
   await sleep(50_000); // let the one-minute runs end before closing
   await sim.close();
   await rt.close();

@@ -62,13 +62,16 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
   }
   const fleet = new Fleet(db);
   await fleet.load();
-  const writer = new ReadingWriter(pool, log.child({ part: 'ingest' }), clock, {
+  // What the boards report gets connections of its own, so a valve event is stored (and the
+  // board's next message read) without queueing behind the scheduler's or the API's queries.
+  const ingestDbh = createDb(config.DATABASE_URL, { max: 4 });
+  const writer = new ReadingWriter(ingestDbh.pool, log.child({ part: 'ingest' }), clock, {
     batchRows: config.READING_BATCH_ROWS,
     flushMs: config.READING_FLUSH_MS,
     maxBufferedRows: config.READING_BUFFER_ROWS,
     shared: !!config.MQTT_URL,
   });
-  const sink = createDeviceSink({ db, fleet, writer, bus, clock, log: log.child({ part: 'ingest' }) });
+  const sink = createDeviceSink({ db: ingestDbh.db, fleet, writer, bus, clock, log: log.child({ part: 'ingest' }) });
   const gateway = await startGateway({
     embedded: config.MQTT_URL ? undefined : { host: config.MQTT_HOST, port: config.MQTT_PORT },
     external: config.MQTT_URL
@@ -129,6 +132,7 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
       });
       await gateway.close().catch(() => {});
       await writer.close().catch(() => {});
+      await ingestDbh.close();
       await dbh.close();
     })());
   return { config, log, dbh, server, url, gateway, mqttUrl, services, writer, hub, extras, close };
