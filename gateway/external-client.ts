@@ -10,9 +10,16 @@ export type ExternalLink = {
 
 /**
  * With MQTT_URL set, the gateway is a client of an existing broker, which then authenticates
- * boards and enforces topic ACLs itself (docs/deployment.md). Board messages come through a
- * shared subscription, so several Runnel instances split the ingest; the PUBACK to the broker
- * is held until the message is stored.
+ * boards and enforces topic ACLs itself (docs/deployment.md).
+ *
+ * mqtt.js hands an MQTT connection's incoming messages over one at a time: the next is read only
+ * once the previous one's PUBACK has gone out, and the PUBACK is held until the message is stored.
+ * So one connection carries one message per database round trip. The instance therefore opens
+ * - one control connection for acknowledgements, relay states and online status (not shared:
+ *   every instance needs them, and nothing slow stands in their way), and
+ * - `ingestConnections` connections that join the shared subscription for telemetry and valve
+ *   events, so the broker spreads the boards' messages over them, and over every instance; each
+ *   message is stored once, and several are stored at a time.
  */
 export async function connectExternalBroker(opts: {
   url: string;
@@ -20,54 +27,68 @@ export async function connectExternalBroker(opts: {
   password?: string;
   clientId: string;
   shareGroup?: string;
+  ingestConnections?: number;
   handler: ProtocolHandler;
   log: Logger;
 }): Promise<ExternalLink> {
   const { handler, log } = opts;
   const share = opts.shareGroup ?? 'runnel';
-  const client: mqtt.MqttClient = await mqtt.connectAsync(opts.url, {
-    clientId: opts.clientId,
-    username: opts.username,
-    password: opts.password,
-    clean: false,
-    reconnectPeriod: 1000,
-    // MQTT 5: mqtt.js lets us hold each PUBACK (customHandleAcks) only on protocol version 5
-    protocolVersion: 5,
-    properties: { sessionExpiryInterval: 3600 },
-    customHandleAcks: (topic, payload, _packet, done) => {
-      handler
-        .handle(null, topic, Buffer.from(payload))
-        .then(() => done(0))
-        .catch((err) => {
-          // Not stored: no PUBACK. Dropping the connection makes the broker deliver it again.
-          log.error({ err: (err as Error).message, topic }, 'board message not stored; reconnecting for a redelivery');
-          client.stream.destroy();
-        });
-    },
-  });
-  client.on('error', (err) => log.warn({ err: err.message }, 'external broker error'));
-  // Telemetry and events are split between instances (each stored once); acknowledgements go to
-  // every instance, because only the one that sent the command is waiting for it; retained state
-  // and status go to every instance, so each knows every board's relays and whether it is online.
-  const topics = ['telemetry', 'event'].map((k) => `$share/${share}/${TOPIC_ROOT}/+/${k}`).concat([`${TOPIC_ROOT}/+/ack`, `${TOPIC_ROOT}/+/state`, `${TOPIC_ROOT}/+/status`]);
-  await client.subscribeAsync(topics, { qos: 1 });
-  // Subscribe again on every reconnect, even when the broker says it kept our session: a broker
-  // restored from its persistence file does not always bring shared subscriptions back.
-  client.on('connect', () => {
-    client.subscribe(topics, { qos: 1 }, (err) => err && log.warn({ err: err.message }, 'resubscribe failed'));
-  });
+  const n = Math.max(1, opts.ingestConnections ?? 8);
+
+  const connect = async (clientId: string, topics: string[]) => {
+    const client: mqtt.MqttClient = await mqtt.connectAsync(opts.url, {
+      clientId,
+      username: opts.username,
+      password: opts.password,
+      clean: false,
+      // Back before the boards: Mosquitto 2.0 does not keep shared subscriptions across its own
+      // restart, and a board's message that arrives before any instance has subscribed again is
+      // accepted by the broker and delivered to no one (docs/deployment.md).
+      reconnectPeriod: 250,
+      // MQTT 5: mqtt.js lets us hold each PUBACK (customHandleAcks) only on protocol version 5
+      protocolVersion: 5,
+      properties: { sessionExpiryInterval: 3600 },
+      customHandleAcks: (topic, payload, _packet, done) => {
+        handler
+          .handle(null, topic, Buffer.from(payload))
+          .then(() => done(0))
+          .catch((err) => {
+            // Not stored: no PUBACK. Dropping the connection makes the broker deliver it again.
+            log.error({ err: (err as Error).message, topic, clientId }, 'board message not stored; reconnecting for a redelivery');
+            client.stream.destroy();
+          });
+      },
+    });
+    client.on('error', (err) => log.warn({ err: err.message, clientId }, 'external broker error'));
+    await client.subscribeAsync(topics, { qos: 1 });
+    // Subscribe again on every reconnect, even when the broker says it kept our session: a broker
+    // restored from its persistence file does not always bring shared subscriptions back.
+    client.on('connect', () => {
+      client.subscribe(topics, { qos: 1 }, (err) => err && log.warn({ err: err.message, clientId }, 'resubscribe failed'));
+    });
+    return { client, topics };
+  };
+
+  const controlTopics = ['ack', 'state', 'status'].map((k) => `${TOPIC_ROOT}/+/${k}`);
+  const sharedTopics = ['telemetry', 'event'].map((k) => `$share/${share}/${TOPIC_ROOT}/+/${k}`);
+  const control = await connect(opts.clientId, controlTopics);
+  const ingest = await Promise.all(Array.from({ length: n }, (_, i) => connect(`${opts.clientId}-in${i}`, sharedTopics)));
+  const all = [control, ...ingest];
+
   return {
     publish: async (topic, payload, qos) => {
-      await client.publishAsync(topic, payload, { qos });
+      await control.client.publishAsync(topic, payload, { qos });
     },
     close: async () => {
       // Leave the share group first, or the broker keeps queueing this instance's share of the
       // boards' messages for a session that is going away. (After a crash the queue waits for
       // the instance to come back under the same client id: give each instance a stable one.)
-      await client.unsubscribeAsync(topics).catch(() => {});
-      // finish storing what was received, so its PUBACKs go out before the session ends
+      await Promise.all(all.map((c) => c.client.unsubscribeAsync(c.topics).catch(() => {})));
+      // finish storing what was received, so its PUBACKs go out before the sessions end
       await Promise.race([handler.idle(), new Promise((r) => setTimeout(r, 10_000))]);
-      await client.endAsync(false, { properties: { sessionExpiryInterval: 0 } } as never).catch(() => client.end(true));
+      await Promise.all(
+        all.map((c) => c.client.endAsync(false, { properties: { sessionExpiryInterval: 0 } } as never).catch(() => c.client.end(true))),
+      );
     },
   };
 }

@@ -12,7 +12,7 @@ export type GatewayOptions = {
   /** Start aedes on host:port … */
   embedded?: { host: string; port: number };
   /** … or connect to an existing broker. */
-  external?: { url: string; username?: string; password?: string; clientId: string };
+  external?: { url: string; username?: string; password?: string; clientId: string; ingestConnections?: number };
   sink: DeviceSink;
   log: Logger;
   driver?: BoardDriver;

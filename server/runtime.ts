@@ -75,7 +75,7 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
   const gateway = await startGateway({
     embedded: config.MQTT_URL ? undefined : { host: config.MQTT_HOST, port: config.MQTT_PORT },
     external: config.MQTT_URL
-      ? { url: config.MQTT_URL, username: config.MQTT_USERNAME, password: config.MQTT_PASSWORD, clientId: `runnel-${config.INSTANCE_ID ?? `${process.pid}-${Math.random().toString(36).slice(2, 8)}`}` }
+      ? { url: config.MQTT_URL, username: config.MQTT_USERNAME, password: config.MQTT_PASSWORD, ingestConnections: config.MQTT_INGEST_CONNECTIONS, clientId: `runnel-${config.INSTANCE_ID ?? `${process.pid}-${Math.random().toString(36).slice(2, 8)}`}` }
       : undefined,
     sink,
     log,

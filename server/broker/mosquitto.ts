@@ -25,12 +25,22 @@ export const SERVER_MQTT_USER = 'runnel-server';
 const here = path.dirname(fileURLToPath(import.meta.url));
 export const MOSQUITTO_TEMPLATE_DIR = path.resolve(here, '../../deploy/mosquitto');
 
-/** Write passwords, ACL and config into `dir`; returns the config file's path. */
-export function writeMosquittoFiles(dir: string, port: number, entries: { user: string; hash: string }[]): string {
+/**
+ * Write passwords, ACL and config into `dir`; returns the config file's path. Boards sign in on
+ * `port`, the server instances (user SERVER_MQTT_USER, whose entry goes to a password file of its
+ * own) on `serverPort`.
+ */
+export function writeMosquittoFiles(dir: string, port: number, entries: { user: string; hash: string }[], serverPort: number): string {
   fs.mkdirSync(path.join(dir, 'data'), { recursive: true });
-  fs.writeFileSync(path.join(dir, 'passwords'), entries.map((e) => `${e.user}:${e.hash}`).join('\n') + '\n', { mode: 0o640 });
+  const line = (e: { user: string; hash: string }) => `${e.user}:${e.hash}`;
+  fs.writeFileSync(path.join(dir, 'passwords'), entries.filter((e) => e.user !== SERVER_MQTT_USER).map(line).join('\n') + '\n', { mode: 0o640 });
+  fs.writeFileSync(path.join(dir, 'server-passwords'), entries.filter((e) => e.user === SERVER_MQTT_USER).map(line).join('\n') + '\n', { mode: 0o640 });
   fs.copyFileSync(path.join(MOSQUITTO_TEMPLATE_DIR, 'runnel.acl'), path.join(dir, 'runnel.acl'));
-  const conf = fs.readFileSync(path.join(MOSQUITTO_TEMPLATE_DIR, 'runnel.conf.template'), 'utf8').replaceAll('{{DIR}}', dir).replaceAll('{{PORT}}', String(port));
+  const conf = fs
+    .readFileSync(path.join(MOSQUITTO_TEMPLATE_DIR, 'runnel.conf.template'), 'utf8')
+    .replaceAll('{{DIR}}', dir)
+    .replaceAll('{{SERVER_PORT}}', String(serverPort))
+    .replaceAll('{{PORT}}', String(port));
   const file = path.join(dir, 'runnel.conf');
   fs.writeFileSync(file, conf);
   return file;

@@ -40,6 +40,8 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
   const { db, fleet, writer, bus, log } = deps;
   let listener = deps.listener;
   const verified = new Set<string>();
+  /** Per controller and relay: the sequence number of the event its live state shows. */
+  const appliedSeq = new Map<string, number>();
   // Events from many boards at once (a schedule opening thousands of zones) share one insert.
   const storeEvent = batched(async (rows: readonly (typeof valveEvents.$inferInsert)[]) => {
     const got = await db.insert(valveEvents).values([...rows]).onConflictDoNothing().returning({ controllerId: valveEvents.controllerId, seq: valveEvents.seq });
@@ -138,6 +140,12 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       });
       if (!stored) return;
       b.lastSeenAt = receivedAt.getTime();
+      // With shared ingest an older event can arrive after a newer one: stored for the history,
+      // but a relay's live state follows only its newest event.
+      const relayKey = `${b.controllerId}:${e.relay}`;
+      const shown = appliedSeq.get(relayKey);
+      if (shown !== undefined && e.seq < shown && shown - e.seq < 1_000_000) return; // (a far lower one is a board that restarted)
+      appliedSeq.set(relayKey, e.seq);
       const r = b.relays[e.relay - 1];
       if (r) {
         r.open = e.open;
@@ -198,6 +206,9 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       if (!b.online) await setOnline(b, true, receivedAt);
       const last = samples[samples.length - 1];
       const lastAt = rows[rows.length - 1].at;
+      // Shared ingest can hand an older message over after a newer one: it is stored, but the
+      // live picture (latest reading, rain) only moves forward in time.
+      if (b.latest && lastAt.getTime() < b.latest.atMs) return;
       for (let i = 0; i < samples.length; i++) {
         fleet.pushRecent(b, { at: rows[i].at.getTime(), moisturePct: samples[i].moisturePct, flowLpm: samples[i].flowLpm, supplyV: samples[i].supplyV });
       }

@@ -1,5 +1,8 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { zones } from '../../server/db/schema/index';
+import { DateTime } from 'luxon';
+import { eq, sql } from 'drizzle-orm';
+import { programZones, programs, runs, zoneRuns, zones } from '../../server/db/schema/index';
+import { programCrons } from '../../server/scheduler/calendar';
 import { startRuntime, type Runtime } from '../../server/runtime';
 import { SERVER_MQTT_USER } from '../../server/broker/mosquitto';
 import { provisionBoards, type BoardSpecRow } from '../../server/services/device-secrets';
@@ -22,7 +25,7 @@ let sim: Simulator;
 
 const instanceConfig = () =>
   testConfig(tdb.url, {
-    MQTT_URL: broker.url, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, LIVE_RELAY: '1',
+    MQTT_URL: broker.serverUrl, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, LIVE_RELAY: '1',
     SCHEDULER: '1', SCHEDULER_TICK_MS: '500', RECONCILE_DELAY_MS: '1500', READING_FLUSH_MS: '50', FAILSAFE_MARGIN_SECONDS: '3', ACK_TIMEOUT_MS: '1500',
   });
 
@@ -35,7 +38,8 @@ beforeAll(async () => {
   a = await startRuntime(instanceConfig());
   await sleep(300); // a takes the scheduler lock first
   b = await startRuntime(instanceConfig());
-  sim = await startSimulator({ brokerUrl: broker.url, boards, seed: 41, sampleIntervalMs: 50, samplesPerMessage: 2, reconnectPeriodMs: 300 });
+  // boards back off 1.5 s before reconnecting (field boards back off for seconds); the instances retry every 250 ms
+  sim = await startSimulator({ brokerUrl: broker.url, boards, seed: 41, sampleIntervalMs: 50, samplesPerMessage: 2, reconnectPeriodMs: 1500 });
   await sim.ready();
   await until(() => a.services.fleet.all().every((x) => x.online) || b.services.fleet.all().every((x) => x.online), 10_000);
 }, 60_000);
@@ -65,4 +69,50 @@ describe('two instances on one PostgreSQL and one Mosquitto broker', () => {
     live.close();
   });
 
+  it('dispatches each scheduled start once, and when the dispatching instance is killed mid-run the other takes over with no valve left open and no zone run doubled or lost', async () => {
+    const leader = a.services.scheduler.isLeader ? a : b;
+    const other = leader === a ? b : a;
+    expect(other.services.scheduler.isLeader).toBe(false);
+    const [zoneA2] = await tdb.db.select({ id: zones.id }).from(zones).where(eq(zones.name, 'A2'));
+    // a program that starts at the next whole minute: zone A1 for 15 s, then A2 for 15 s
+    const start = DateTime.now().setZone('America/Denver').plus({ seconds: 5 }).startOf('minute').plus({ minutes: 1 });
+    const startTimes = [start.toFormat('HH:mm')];
+    const dayRule = { kind: 'weekdays' as const, weekdays: [0, 1, 2, 3, 4, 5, 6] };
+    const [p] = await tdb.db.insert(programs).values({ siteId: f.siteA, name: 'Takeover', startTimes, dayRule, crons: programCrons({ startTimes, dayRule, activeFrom: null, activeTo: null }) }).returning();
+    await tdb.db.insert(programZones).values([{ programId: p.id, zoneId: f.zoneA, minutes: 0.25, position: 1, cycleSoak: 'off' }, { programId: p.id, zoneId: zoneA2.id, minutes: 0.25, position: 2, cycleSoak: 'off' }]);
+    const board = sim.board('TEST-A-0001');
+    await until(() => board.relayStates()[0].open, 90_000, 100);
+    const closesAt = Date.parse(board.relayStates()[0].closesAt!);
+    // the dispatching instance dies without closing anything
+    await leader.close();
+    await until(() => other.services.scheduler.isLeader, 15_000, 100);
+    // no valve stays open past its maximum on-time
+    await until(() => !board.relayStates()[0].open, Math.max(0, closesAt - Date.now()) + 5000, 100);
+    expect(Date.now()).toBeLessThan(closesAt + 3000);
+    // the run goes on: the second zone runs under the new dispatcher, then everything is closed
+    await until(async () => (await tdb.db.select().from(runs).where(eq(runs.programId, p.id)))[0]?.state !== 'running', 150_000, 500);
+    const rs = await tdb.db.select().from(runs).where(eq(runs.programId, p.id));
+    expect(rs).toHaveLength(1);
+    const zr = await tdb.db.select().from(zoneRuns).where(eq(zoneRuns.runId, rs[0].id));
+    expect(zr.map((z) => z.zoneId).sort()).toEqual([f.zoneA, zoneA2.id].sort());
+    expect(zr.every((z) => z.state !== 'running' && z.state !== 'planned')).toBe(true);
+    expect(zr.find((z) => z.zoneId === zoneA2.id)!.state).toBe('completed');
+    expect(board.relayStates().every((r) => !r.open)).toBe(true);
+    const dup = await tdb.db.execute(sql`select zone_id from zone_runs where run_id = ${rs[0].id} group by zone_id, cycle having count(*) > 1`);
+    expect(dup.rows).toEqual([]);
+  }, 240_000);
+
+  it('stores each reading once across the two instances’ shared subscription', async () => {
+    await sleep(3000);
+    await until(() => [...sim.boards.values()].every((x) => x.online && x.stats.samplesBuffered === 0), 20_000);
+    await sim.close();
+    await sleep(1500);
+    for (const rt of [a, b]) await rt.writer.flush().catch(() => {});
+    const sent = [...sim.boards.values()].reduce((s, x) => s + x.stats.samplesSent, 0);
+    const stored = Number((await tdb.db.execute(sql`select count(*) as n from readings`)).rows[0].n);
+    const dups = Number((await tdb.db.execute(sql`select count(*) as n from (select 1 from readings group by controller_id, board_at, seq having count(*) > 1) d`)).rows[0].n);
+    expect(sent).toBeGreaterThan(100);
+    expect(dups).toBe(0);
+    expect(stored).toBe(sent);
+  }, 60_000);
 });

@@ -6,7 +6,16 @@ import path from 'node:path';
 import { mosquittoHash, SERVER_MQTT_USER, writeMosquittoFiles } from '../../server/broker/mosquitto';
 
 /** Debian's Mosquitto on a loopback port of its own, with Runnel's generated credentials and ACL. */
-export type Mosquitto = { url: string; port: number; serverPassword: string; restart: () => Promise<void>; stop: () => Promise<void> };
+export type Mosquitto = {
+  /** Where boards connect. */
+  url: string;
+  port: number;
+  /** Where Runnel's server instances connect (MQTT_URL). */
+  serverUrl: string;
+  serverPassword: string;
+  restart: () => Promise<void>;
+  stop: () => Promise<void>;
+};
 
 async function freePort(): Promise<number> {
   return new Promise((resolve) => {
@@ -34,8 +43,9 @@ async function waitForPort(port: number, ms = 10_000) {
 export async function startMosquitto(boards: { serial: string; secret: string }[]): Promise<Mosquitto> {
   const dir = fs.mkdtempSync(path.join(os.tmpdir(), 'runnel-mosquitto-'));
   const port = await freePort();
+  const serverPort = await freePort();
   const serverPassword = 'server-' + Math.random().toString(36).slice(2);
-  const conf = writeMosquittoFiles(dir, port, [{ user: SERVER_MQTT_USER, hash: mosquittoHash(serverPassword) }, ...boards.map((b) => ({ user: b.serial, hash: mosquittoHash(b.secret) }))]);
+  const conf = writeMosquittoFiles(dir, port, [{ user: SERVER_MQTT_USER, hash: mosquittoHash(serverPassword) }, ...boards.map((b) => ({ user: b.serial, hash: mosquittoHash(b.secret) }))], serverPort);
   // mosquitto drops root privileges to its own user: let it read and write its folder
   if (process.getuid?.() === 0) {
     try {
@@ -48,6 +58,7 @@ export async function startMosquitto(boards: { serial: string; secret: string }[
   const start = async () => {
     proc = spawn('/usr/sbin/mosquitto', ['-c', conf], { stdio: 'ignore' });
     await waitForPort(port);
+    await waitForPort(serverPort);
   };
   const stop = async () => {
     const p = proc;
@@ -62,6 +73,7 @@ export async function startMosquitto(boards: { serial: string; secret: string }[
   return {
     url: `mqtt://127.0.0.1:${port}`,
     port,
+    serverUrl: `mqtt://127.0.0.1:${serverPort}`,
     serverPassword,
     restart: async () => {
       await stop();
