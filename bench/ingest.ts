@@ -35,7 +35,6 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   const db = await benchDb(`ingest${n}`);
   const { boards, zoneIds } = await buildFleet(db, n);
   const rt = await startRuntime(benchConfig(db.url, { ACK_TIMEOUT_MS: '5000' }));
-  (globalThis as Record<string, unknown>).__benchRt = rt;
   const fleetFile = path.join(os.tmpdir(), `runnel-bench-fleet-${n}.json`);
   fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
   const child = spawn(process.execPath, ['--import', 'tsx', 'bench/sim-child.ts', fleetFile, rt.mqttUrl!, String(Math.round(1000 / perSecond)), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
@@ -65,7 +64,6 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   const ws = new WebSocket(`${rt.url.replace('http', 'ws')}/ws`, { headers: { cookie, origin: rt.url } });
   const latencies: number[] = [];
   let measuring = false;
-  (globalThis as Record<string, unknown>).__benchWs = ws;
   ws.on('message', (d) => {
     const t = Date.now();
     const m = JSON.parse(String(d));

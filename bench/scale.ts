@@ -58,7 +58,6 @@ export async function benchScaleOne(n: number, windowMs = 20_000): Promise<Scale
         ...process.env, NODE_ENV: 'test', RUNNEL_DEMO: '0', DATABASE_URL: db.url, PORT: String(port), HOST: '127.0.0.1',
         MQTT_URL: broker.serverUrl, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, INSTANCE_ID: `bench-${i}`,
         LIVE_RELAY: '1', SCHEDULER: '0', LOG_LEVEL: 'error', WEATHER_PORT: '0', LOGIN_RATE_LIMIT: '10000', OFFLINE_AFTER_SECONDS: '3600',
-        READING_FLUSH_MS: '200', READING_BATCH_ROWS: '10000',
       },
     }),
   );

@@ -70,6 +70,8 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
     flushMs: config.READING_FLUSH_MS,
     maxBufferedRows: config.READING_BUFFER_ROWS,
     shared: !!config.MQTT_URL,
+    // Each ingest connection brings one message at a time and waits for it to be stored.
+    flushAtMessages: config.MQTT_URL ? config.MQTT_INGEST_CONNECTIONS : undefined,
   });
   const sink = createDeviceSink({ db: ingestDbh.db, fleet, writer, bus, clock, log: log.child({ part: 'ingest' }) });
   const gateway = await startGateway({

@@ -55,7 +55,15 @@ export class ReadingWriter {
     private pool: pg.Pool,
     private log: Logger,
     private clock: Clock,
-    private opts: { batchRows: number; flushMs: number; maxBufferedRows: number; onBufferFull?: () => void; shared?: boolean } = {
+    private opts: {
+      batchRows: number;
+      flushMs: number;
+      maxBufferedRows: number;
+      onBufferFull?: () => void;
+      shared?: boolean;
+      /** Flush at once when this many messages wait: all the connections that can bring one are waiting (external broker). */
+      flushAtMessages?: number;
+    } = {
       batchRows: 5000,
       flushMs: 200,
       maxBufferedRows: 500_000,
@@ -76,7 +84,7 @@ export class ReadingWriter {
       this.queue.push({ text, n: rows.length, controllerId, seq, resolve, reject });
       this.stats.buffered += rows.length;
       this.stats.maxBuffered = Math.max(this.stats.maxBuffered, this.stats.buffered);
-      if (this.stats.buffered >= this.opts.batchRows) void this.flush();
+      if (this.stats.buffered >= this.opts.batchRows || (this.opts.flushAtMessages && this.queue.length >= this.opts.flushAtMessages)) void this.flush();
       else if (!this.timer) this.timer = this.clock.setTimeout(() => void this.flush(), this.opts.flushMs);
     });
   }

@@ -80,6 +80,11 @@ export class Scheduler {
         c.on('error', () => this.loseLeadership('lock connection error'));
         c.on('end', () => this.loseLeadership('lock connection ended'));
         await c.connect();
+        if (this.stopped) {
+          // stopped while connecting: never take the lock on the way out
+          await c.end().catch(() => {});
+          return false;
+        }
         this.lockClient = c;
       }
       if (this.leader) {
@@ -87,6 +92,11 @@ export class Scheduler {
         return true;
       }
       const r = await this.lockClient.query('select pg_try_advisory_lock($1) as ok', [SCHEDULER_LOCK_KEY]);
+      if (this.stopped) {
+        // stop() ran while the lock was being asked for: let it go with the connection
+        this.loseLeadership('stopping');
+        return false;
+      }
       if (r.rows[0].ok) {
         this.leader = true;
         this.stats.leaderSince = this.d.clock.now();

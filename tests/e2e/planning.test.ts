@@ -81,7 +81,12 @@ describe('the planning screens', () => {
     await page.setViewportSize(PHONE);
     await settle(page);
     await screenshot(page, 'supply-phone');
+    // on a phone the unit switch sits in the account menu, not in the header
+    expect(await page.locator('header [data-test=units-metric]').count()).toBe(0);
+    await page.locator('[data-test=user-menu]').click();
     await page.locator('[data-test=units-metric]').click();
+    await page.waitForFunction(() => /L\/min/.test(document.querySelector('[data-test=supply-test-flow]')?.textContent ?? ''));
+    await page.keyboard.press('Escape');
 
     // Technicians record weather, but only managers and admins fetch it from the service.
     await page.goto(`${demo.rt.url}/sites/${site('larkspur')}/watering`);

@@ -254,12 +254,13 @@ describe('restarts and several instances', { timeout: 90_000 }, () => {
       expect(rs.map((r) => DateTime.fromJSDate(r.scheduledFor, { zone: tz }).toFormat('HH:mm'))).toEqual(['08:00', '08:30', '09:00']);
       const zr = await w.tdb.db.select().from(zoneRuns).where(and(eq(zoneRuns.zoneId, a2), sql`${zoneRuns.runId} in (select id from runs where program_id = ${p})`));
       expect(zr).toHaveLength(3);
-      // the dispatching instance stops: the other takes the lock within a few ticks
+      // the dispatching instance stops: the other takes the lock at its next tick (these worlds tick
+      // every 5 virtual minutes, so two of its ticks fit in 11 minutes whatever their phase)
       const leaderWasFirst = w.rt.services.scheduler.isLeader;
       const other = leaderWasFirst ? second : w.rt;
       if (leaderWasFirst) await w.rt.services.scheduler.stop();
       else await second.services.scheduler.stop();
-      await w.runFor(3 * 60_000, 30_000);
+      await w.runFor(11 * 60_000, 30_000);
       expect(other.services.scheduler.isLeader, 'the other instance took over').toBe(true);
     } finally {
       await second.close();
