@@ -8,8 +8,10 @@ import { benchSchedule } from './schedule';
  * and prints a table. Pick parts with BENCH_ONLY=ingest,copy,schedule,history.
  */
 const only = new Set((process.env.BENCH_ONLY ?? 'ingest,copy,schedule,history,scale').split(','));
-const out: Record<string, unknown> = { machine: { cpus: (await import('node:os')).cpus().length, node: process.version, at: new Date().toISOString() } };
 const file = path.resolve('bench/results/latest.json');
+// With BENCH_ONLY, the parts not run keep their figures from the last run.
+const previous = process.env.BENCH_ONLY && fs.existsSync(file) ? (JSON.parse(fs.readFileSync(file, 'utf8')) as Record<string, unknown>) : {};
+const out: Record<string, unknown> = { ...previous, machine: { cpus: (await import('node:os')).cpus().length, node: process.version, at: new Date().toISOString() } };
 const save = () => {
   fs.mkdirSync(path.dirname(file), { recursive: true });
   fs.writeFileSync(file, JSON.stringify(out, null, 2) + '\n');

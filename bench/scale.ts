@@ -117,8 +117,15 @@ export async function benchScaleOne(n: number, windowMs = 20_000): Promise<Scale
   const rss = instances.map((p) => rssMb(p.pid!));
   sim.kill('SIGINT');
   const totals = (await waitFor('done')) as { sent: number };
-  await sleep(3000);
-  const stored = await count();
+  // The broker may still hold what the instances have not taken yet: count once the count stops
+  // growing (up to two minutes), so "lost" means lost, not "still queued".
+  let stored = await count();
+  for (let quiet = 0, t = Date.now(); quiet < 3 && Date.now() - t < 120_000; ) {
+    await sleep(1000);
+    const now = await count();
+    quiet = now === stored ? quiet + 1 : 0;
+    stored = now;
+  }
   ws.close();
   for (const p of instances) p.kill('SIGTERM');
   await Promise.all(instances.map((p) => new Promise((r) => (p.exitCode !== null ? r(null) : p.once('exit', r)))));

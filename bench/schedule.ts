@@ -3,7 +3,11 @@ import { sql } from 'drizzle-orm';
 import { programZones, programs } from '../server/db/schema/index';
 import { programCrons } from '../server/scheduler/calendar';
 import { startRuntime } from '../server/runtime';
-import { startSimulator } from '../simulator/fleet';
+import { spawn } from 'node:child_process';
+import fs from 'node:fs';
+import os from 'node:os';
+import path from 'node:path';
+import readline from 'node:readline';
 import { benchConfig, benchDb, percentile, round, sleep } from './common';
 import { buildFleet } from './fleet-world';
 
@@ -23,8 +27,30 @@ export async function benchSchedule(opts: { zones?: number; staggerMs?: number }
   const db = await benchDb('schedule');
   const { boards, siteIds } = await buildFleet(db, boardsN, { zonesPer: perBoard, relayCount: 8, cap: 8, staggerMs: stagger });
   const rt = await startRuntime(benchConfig(db.url, { SCHEDULER: '1', SCHEDULER_TICK_MS: '1000', ACK_TIMEOUT_MS: '10000', RECONCILE_DELAY_MS: '60000' }));
-  const sim = await startSimulator({ brokerUrl: rt.mqttUrl!, boards, seed: 9, sampleIntervalMs: 300_000, connectBatchSize: 100 });
-  await sim.ready();
+  // the boards in a process of their own, as in the ingest benchmark, so they do not share the server's core
+  const fleetFile = path.join(os.tmpdir(), `runnel-bench-schedule-${boardsN}.json`);
+  fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
+  const child = spawn(process.execPath, ['--import', 'tsx', 'bench/sim-child.ts', fleetFile, rt.mqttUrl!, '300000', '1'], {
+    stdio: ['ignore', 'pipe', 'inherit'],
+    env: { ...process.env, SIM_REPORT_ENERGIZE: '1' },
+  });
+  const lines = readline.createInterface({ input: child.stdout! });
+  const msgs: Record<string, unknown>[] = [];
+  lines.on('line', (l) => {
+    try {
+      msgs.push(JSON.parse(l));
+    } catch {
+      /* not ours */
+    }
+  });
+  const waitFor = async (key: string) => {
+    for (;;) {
+      const hit = msgs.find((m) => key in m);
+      if (hit) return hit;
+      await sleep(100);
+    }
+  };
+  await waitFor('ready');
   while (rt.services.fleet.all().filter((b) => b.online).length < boardsN) await sleep(200);
   // every site's program starts at the next whole minute at least 40 s away
   const start = DateTime.now().setZone('America/Denver').plus({ seconds: 40 }).startOf('minute').plus({ minutes: 1 });
@@ -39,10 +65,13 @@ export async function benchSchedule(opts: { zones?: number; staggerMs?: number }
   }
   const startMs = start.toMillis();
   await sleep(Math.max(0, startMs - Date.now()) + 15_000);
+  // stop the boards (their relay start times come back with their totals); the runs' end is not measured
+  child.kill('SIGINT');
+  const { energized } = (await waitFor('done')) as { energized: Record<string, number[]> };
   const lateness: number[] = [];
   let minGap = Infinity;
-  for (const b of sim.boards.values()) {
-    const log = b.energizeLog.filter((e) => e.atMs >= startMs - 1000).map((e) => e.atMs).sort((x, y) => x - y);
+  for (const times of Object.values(energized)) {
+    const log = times.filter((t) => t >= startMs - 1000).sort((x, y) => x - y);
     for (const t of log) lateness.push(t - startMs);
     for (let i = 1; i < log.length; i++) minGap = Math.min(minGap, log[i] - log[i - 1]);
   }
@@ -65,9 +94,8 @@ export async function benchSchedule(opts: { zones?: number; staggerMs?: number }
       where c.controller_id = (select min(controller_id) from commands) order by c.sent_at`);
     console.error('one board:', JSON.stringify(one.rows));
   }
-  await sleep(50_000); // let the one-minute runs end before closing
-  await sim.close();
   await rt.close();
+  fs.rmSync(fleetFile, { force: true });
   await db.drop();
   return {
     zones: zonesTotal, controllers: boardsN,

@@ -22,6 +22,8 @@ process.on('SIGINT', async () => {
     taken += b.stats.samplesTaken;
     dropped += b.stats.samplesDropped;
   }
-  process.stdout.write(JSON.stringify({ done: true, sent, taken, dropped }) + '\n');
+  // Each board's relay start times, for the schedule benchmark's lateness and stagger.
+  const energized = process.env.SIM_REPORT_ENERGIZE ? Object.fromEntries([...sim.boards].map(([serial, b]) => [serial, b.energizeLog.map((e) => e.atMs)])) : undefined;
+  process.stdout.write(JSON.stringify({ done: true, sent, taken, dropped, energized }) + '\n');
   process.exit(0);
 });
