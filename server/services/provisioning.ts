@@ -1,4 +1,5 @@
 import { randomInt } from 'node:crypto';
+import { MAINS_CAUTION, WATER_AND_GROUND_CAUTION } from '../contracts/cautions';
 import argon2 from 'argon2';
 import QRCode from 'qrcode';
 import { and, eq, inArray, ne, sql } from 'drizzle-orm';
@@ -263,7 +264,7 @@ code{font-size:15px}.secret{display:block;font-size:17px;padding:6px;border:1px 
 </div><div class="qr">${qr}<p class="small">Board settings: broker, serial${opts.secret ? ', secret' : ''}.</p></div></div>
 <h2>Relay map</h2>
 <table><tr><th>Relay</th><th>Wired to</th><th>Checked ✓</th></tr>${rows}</table>
-<div class="caution"><p><strong>Caution — mains voltage.</strong> The board’s power supply, and on some boards the relay contacts, may carry mains voltage. Isolate and lock off the supply before opening the enclosure. Mains wiring is work for a qualified electrician under local codes. Valve solenoids run on 24 VAC from their own transformer; never switch mains through a valve circuit.</p>
-<p><strong>Water and ground.</strong> Irrigation connected to drinking water needs an approved backflow preventer, tested as local rules require. Have buried utilities located before you dig.</p></div>
+<div class="caution"><p><strong>Caution — mains voltage.</strong> ${esc(MAINS_CAUTION)}</p>
+<p><strong>Water and ground.</strong> ${esc(WATER_AND_GROUND_CAUTION)}</p></div>
 </body></html>`;
 }
