@@ -108,7 +108,8 @@ describe('the live site page', () => {
     const detail = zone(page, 'Front lawn east').locator('[data-test=zone-valve-detail]');
     await until(async () => /ran \d+:\d\d · [01]:\d\d left/.test(await detail.innerText()), 5000);
     const before = await detail.innerText();
-    await page.waitForTimeout(1300);
+    // the page clock ticks every second; allow a slow machine a few seconds to show it
+    await until(async () => (await detail.innerText()) !== before, 4000);
     expect(await detail.innerText()).not.toBe(before);
 
     // A second zone fits the supply and the board's two valves; a third waits its turn.
