@@ -72,6 +72,7 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   await new Promise((r) => ws.once('open', r));
   await sleep(5000); // warm up: every board connected and sending
   const count = async () => Number((await db.db.execute(sql`select count(*) as n from readings`)).rows[0].n);
+  const profiler = process.env.BENCH_PROFILE ? await startProfile() : null;
   measuring = true;
   let peakRss = process.memoryUsage().rss;
   const c0 = await count();
@@ -87,12 +88,17 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   const c1 = await count();
   const t1 = Date.now();
   measuring = false;
+  if (profiler) await profiler.stop(path.join(process.env.BENCH_PROFILE!, `ingest-${n}.cpuprofile`));
   child.kill('SIGINT');
   const totals = (await waitFor('done')) as { sent: number; taken: number };
   await sleep(500);
   await rt.writer.flush();
   const stored = await count();
   const duplicates = Number((await db.db.execute(sql`select count(*) - count(distinct (controller_id, board_at, seq)) as n from readings`)).rows[0].n);
+  if (duplicates > 0) {
+    const rows = (await db.db.execute(sql`select controller_id, board_at, seq, count(*) as n, array_agg(received_at) as received, array_agg(moisture_raw) as raw from readings group by 1, 2, 3 having count(*) > 1 limit 5`)).rows;
+    console.error('duplicate readings (first 5):', JSON.stringify(rows));
+  }
   ws.close();
   await rt.close();
   await db.drop();
@@ -137,4 +143,21 @@ export async function benchRawCopy(rows = 1_000_000): Promise<number> {
   client.release();
   await db.drop();
   return Math.round(rows / secs);
+}
+
+/** BENCH_PROFILE=dir: a CPU profile of the server's process over the measuring window only. */
+async function startProfile() {
+  const inspector = await import('node:inspector/promises');
+  const session = new inspector.Session();
+  session.connect();
+  await session.post('Profiler.enable');
+  await session.post('Profiler.start');
+  return {
+    async stop(file: string) {
+      const { profile } = await session.post('Profiler.stop');
+      fs.mkdirSync(path.dirname(file), { recursive: true });
+      fs.writeFileSync(file, JSON.stringify(profile));
+      session.disconnect();
+    },
+  };
 }

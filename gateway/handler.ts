@@ -98,10 +98,13 @@ export class ProtocolHandler {
     const laneKey = `${lane}:${serial}`;
     // A refused message does not move the board's sequence, so its resend is accepted.
     if (lane !== 'a' && this.poisoned.has(serial)) throw new Error('an earlier message from this board was not stored; waiting for it again');
-    // Retained state and status are snapshots: always applied, never counted as duplicates.
-    if (this.dedupeBySeq && typeof msg.seq === 'number' && t.kind !== 'state') {
-      const last = this.lastSeq.get(laneKey) ?? 0;
-      if (msg.seq <= last) return this.drop(serial, 'duplicate', `seq ${msg.seq} ≤ ${last}`);
+    if (this.dedupeBySeq && typeof msg.seq === 'number') {
+      // Retained state and status are snapshots: always applied, never dropped as duplicates.
+      if (t.kind !== 'state') {
+        const last = this.lastSeq.get(laneKey) ?? 0;
+        if (msg.seq <= last) return this.drop(serial, 'duplicate', `seq ${msg.seq} ≤ ${last}`);
+        this.lastSeq.set(laneKey, msg.seq);
+      }
       // One counter runs through every kind of message, so gaps are counted across lanes.
       // A board counts from its power-on clock, so a big jump is a restart, not lost messages.
       const high = this.highest.get(serial) ?? 0;
@@ -111,7 +114,6 @@ export class ProtocolHandler {
         this.sink.gap(serial, missing);
       }
       this.highest.set(serial, Math.max(high, msg.seq));
-      this.lastSeq.set(laneKey, msg.seq);
     }
     if (t.kind === 'ack') {
       // Nothing to store and nothing stored depends on it: an acknowledgement never waits.

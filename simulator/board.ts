@@ -58,6 +58,7 @@ export class SimBoard {
   private readonly clock: Clock;
   private readonly sampleIntervalMs: number;
   private readonly samplesPerMessage: number;
+  private lastSampleMs = 0;
   private readonly buttonMaxOnMs: number;
   private readonly reconnectPeriodMs: number;
   private readonly log?: BoardLog;
@@ -396,7 +397,10 @@ export class SimBoard {
       flowLpm: this.spec.hasFlowSensor ? nominalFlowLpm(open, this.spec.relayFlowsLpm, master, (r) => this.faultState.flowFactor(r)) : null,
       lowVoltage: this.faultState.lowVoltage,
     });
-    const sample: Sample = { at: this.boardIso(), ...reading };
+    // A board's sample times only move forward: two samples never share a millisecond.
+    const atMs = Math.max(this.clock.now(), this.lastSampleMs + 1);
+    this.lastSampleMs = atMs;
+    const sample: Sample = { at: this.boardIso(atMs), ...reading };
     this.batch.push(sample);
     this.latest = sample;
     this.samplesTaken++;

@@ -36,7 +36,8 @@ export function parseTopic(topic: string): { serial: string; kind: MessageKind }
   return { serial: parts[2], kind };
 }
 
-const isoTime = z.iso.datetime({ offset: true });
+// A year before 1970 is a board whose clock was never set (and year 0 is no date PostgreSQL stores).
+const isoTime = z.iso.datetime({ offset: true }).refine((s) => s.slice(0, 4) >= '1970', { message: 'a time before 1970' });
 const relayNo = z.number().int().min(1).max(8);
 const seq = z.number().int().min(0).max(2 ** 53 - 1);
 const v = z.literal(PROTOCOL_VERSION);

@@ -10,7 +10,7 @@ import type { Db } from '../db/client';
 import { controllers, valveEvents } from '../db/schema/index';
 import type { BoardLive, Fleet } from '../fleet/fleet';
 import type { LiveBus } from '../live/bus';
-import type { ReadingRow, ReadingWriter } from './reading-writer';
+import { copyLine, type ReadingWriter } from './reading-writer';
 
 /** A board's clock within this of the server's is trusted as it is. */
 const CLOCK_TOLERANCE_MS = 120_000;
@@ -131,6 +131,30 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       if (!b) return;
       const at = serverTime(b, e.at, receivedAt);
       const zoneId = b.zoneByRelay.get(e.relay) ?? null;
+      b.lastSeenAt = receivedAt.getTime();
+      // The browsers see the change at once; the record follows. The board keeps the event until
+      // it is stored (its acknowledgement waits for this), and a resend shows the same state again.
+      // With shared ingest an older event can arrive after a newer one: stored for the history,
+      // but a relay's live state follows only its newest event.
+      const relayKey = `${b.controllerId}:${e.relay}`;
+      const shown = appliedSeq.get(relayKey);
+      const newest = shown === undefined || e.seq >= shown || shown - e.seq >= 1_000_000; // (a far lower one is a board that restarted)
+      const r = b.relays[e.relay - 1];
+      if (newest) {
+        appliedSeq.set(relayKey, e.seq);
+        if (r) {
+          r.open = e.open;
+          r.since = e.open ? at.getTime() : null;
+          if (!e.open) r.plannedEnd = null;
+          r.cmdId = e.cmdId;
+        }
+        bus.publish({
+          type: 'valve', siteId: b.siteId, controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open,
+          at: at.toISOString(), source: e.source,
+          since: r?.since ? new Date(r.since).toISOString() : null,
+          plannedEnd: r?.plannedEnd ? new Date(r.plannedEnd).toISOString() : null,
+        });
+      }
       // One row per board and sequence number: a resend (or a second instance's copy) stores nothing.
       // The board's stored sequence number moves with its readings only (see ReadingWriter).
       const stored = await storeEvent({
@@ -138,28 +162,8 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
         commandId: e.cmdId && /^[0-9a-f-]{36}$/.test(e.cmdId) ? e.cmdId : null,
         seq: e.seq, boardAt: new Date(e.at), at, receivedAt,
       });
-      if (!stored) return;
-      b.lastSeenAt = receivedAt.getTime();
-      // With shared ingest an older event can arrive after a newer one: stored for the history,
-      // but a relay's live state follows only its newest event.
-      const relayKey = `${b.controllerId}:${e.relay}`;
-      const shown = appliedSeq.get(relayKey);
-      if (shown !== undefined && e.seq < shown && shown - e.seq < 1_000_000) return; // (a far lower one is a board that restarted)
-      appliedSeq.set(relayKey, e.seq);
-      const r = b.relays[e.relay - 1];
-      if (r) {
-        r.open = e.open;
-        r.since = e.open ? at.getTime() : null;
-        if (!e.open) r.plannedEnd = null;
-        r.cmdId = e.cmdId;
-      }
-      listener?.relayChanged(b, e, at.getTime());
-      bus.publish({
-        type: 'valve', siteId: b.siteId, controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open,
-        at: at.toISOString(), source: e.source,
-        since: r?.since ? new Date(r.since).toISOString() : null,
-        plannedEnd: r?.plannedEnd ? new Date(r.plannedEnd).toISOString() : null,
-      });
+      // Zone runs and alerts move once per event, and only from its newest state.
+      if (stored && newest) listener?.relayChanged(b, e, at.getTime());
     },
 
     async relayState(serial, s: RelayState, receivedAt) {
@@ -188,39 +192,38 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
     async samples(serial, seq, samples: Sample[], receivedAt) {
       const b = await board(serial);
       if (!b) return;
-      const rows: ReadingRow[] = samples.map((x) => ({
-        controllerId: b.controllerId,
-        at: serverTime(b, x.at, receivedAt),
-        boardAt: new Date(x.at),
-        receivedAt,
-        seq,
-        rain: x.rain,
-        moistureRaw: x.moistureRaw,
-        moisturePct: x.moisturePct,
-        supplyV: x.supplyV,
-        flowLpm: x.flowLpm,
-        rssi: x.rssi,
-      }));
-      await writer.write(b.controllerId, seq, rows);
-      b.lastSeenAt = receivedAt.getTime();
+      // Straight to COPY text: a busy fleet sends tens of thousands of samples a second.
+      const recvMs = receivedAt.getTime();
+      const recvIso = receivedAt.toISOString();
+      let text = '';
+      let lastAtMs = 0;
+      for (const x of samples) {
+        const boardMs = Date.parse(x.at);
+        const atMs = Math.min(boardMs + b.clockOffsetMs, recvMs);
+        // A trusted board time is stored as the board wrote it (the protocol checked it).
+        text += copyLine(b.controllerId, atMs === boardMs ? x.at : new Date(atMs).toISOString(), x.at, recvIso, seq, x);
+        lastAtMs = atMs;
+      }
+      await writer.writeText(b.controllerId, seq, text, samples.length);
+      b.lastSeenAt = recvMs;
       if (!b.online) await setOnline(b, true, receivedAt);
       const last = samples[samples.length - 1];
-      const lastAt = rows[rows.length - 1].at;
       // Shared ingest can hand an older message over after a newer one: it is stored, but the
       // live picture (latest reading, rain) only moves forward in time.
-      if (b.latest && lastAt.getTime() < b.latest.atMs) return;
-      for (let i = 0; i < samples.length; i++) {
-        fleet.pushRecent(b, { at: rows[i].at.getTime(), moisturePct: samples[i].moisturePct, flowLpm: samples[i].flowLpm, supplyV: samples[i].supplyV });
-      }
-      b.latest = { ...last, atMs: lastAt.getTime() };
+      if (b.latest && lastAtMs < b.latest.atMs) return;
+      // The live sparkline keeps one point per message (its newest sample): a board sampling
+      // fast would otherwise push its minutes-long picture out within seconds.
+      fleet.pushRecent(b, { at: lastAtMs, moisturePct: last.moisturePct, flowLpm: last.flowLpm, supplyV: last.supplyV });
+      b.latest = { ...last, atMs: lastAtMs };
+      const lastIso = new Date(lastAtMs).toISOString();
       if (last.rain !== b.rain) {
         b.rain = last.rain;
         await db.update(controllers).set({ rainTripped: last.rain }).where(eq(controllers.id, b.controllerId));
-        bus.publish({ type: 'rain', siteId: b.siteId, controllerId: b.controllerId, tripped: last.rain, at: lastAt.toISOString() });
-        listener?.rainChanged(b, last.rain, lastAt.getTime());
+        bus.publish({ type: 'rain', siteId: b.siteId, controllerId: b.controllerId, tripped: last.rain, at: lastIso });
+        listener?.rainChanged(b, last.rain, lastAtMs);
       }
       bus.publish({
-        type: 'reading', siteId: b.siteId, controllerId: b.controllerId, at: lastAt.toISOString(),
+        type: 'reading', siteId: b.siteId, controllerId: b.controllerId, at: lastIso,
         rain: last.rain, moisturePct: last.moisturePct, supplyV: last.supplyV, flowLpm: last.flowLpm, rssi: last.rssi,
       });
     },

@@ -32,10 +32,17 @@ export type WriterStats = {
 };
 
 const ts = (d: Date) => d.toISOString();
-const num = (v: number | null) => (v === null ? '\\N' : String(v));
+
+/**
+ * One COPY line of the readings table. Times are ISO 8601 strings PostgreSQL accepts (the
+ * protocol's own, already checked, or Date#toISOString); numbers are finite.
+ */
+export function copyLine(controllerId: number, at: string, boardAt: string, receivedAt: string, seq: number, s: Omit<ReadingRow, 'controllerId' | 'at' | 'boardAt' | 'receivedAt' | 'seq'>): string {
+  return `${controllerId}\t${at}\t${boardAt}\t${receivedAt}\t${seq}\t${s.rain ? 't' : 'f'}\t${s.moistureRaw}\t${s.moisturePct}\t${s.supplyV}\t${s.flowLpm === null ? '\\N' : s.flowLpm}\t${s.rssi}\n`;
+}
 
 function toCopyLine(r: ReadingRow): string {
-  return `${r.controllerId}\t${ts(r.at)}\t${ts(r.boardAt)}\t${ts(r.receivedAt)}\t${r.seq}\t${r.rain ? 't' : 'f'}\t${r.moistureRaw}\t${r.moisturePct}\t${r.supplyV}\t${num(r.flowLpm)}\t${r.rssi}\n`;
+  return copyLine(r.controllerId, ts(r.at), ts(r.boardAt), ts(r.receivedAt), r.seq, r);
 }
 
 /**
@@ -50,6 +57,8 @@ export class ReadingWriter {
   private timer: unknown = null;
   private flushing: Promise<void> | null = null;
   private closed = false;
+  /** Pooled connections that already have the staging table (shared ingest). */
+  private staged = new WeakSet<pg.PoolClient>();
 
   constructor(
     private pool: pg.Pool,
@@ -72,17 +81,22 @@ export class ReadingWriter {
 
   /** Resolves once the rows are committed. */
   write(controllerId: number, seq: number, rows: ReadingRow[]): Promise<void> {
+    let text = '';
+    for (const r of rows) text += toCopyLine(r);
+    return this.writeText(controllerId, seq, text, rows.length);
+  }
+
+  /** Like write, with the rows already as COPY text (one line each, columns as in `copyLine`). */
+  writeText(controllerId: number, seq: number, text: string, n: number): Promise<void> {
     if (this.closed) return Promise.reject(new Error('writer closed'));
-    if (this.stats.buffered + rows.length > this.opts.maxBufferedRows) {
-      this.stats.refused += rows.length;
+    if (this.stats.buffered + n > this.opts.maxBufferedRows) {
+      this.stats.refused += n;
       this.opts.onBufferFull?.();
       return Promise.reject(new Error('reading buffer full'));
     }
-    let text = '';
-    for (const r of rows) text += toCopyLine(r);
     return new Promise((resolve, reject) => {
-      this.queue.push({ text, n: rows.length, controllerId, seq, resolve, reject });
-      this.stats.buffered += rows.length;
+      this.queue.push({ text, n, controllerId, seq, resolve, reject });
+      this.stats.buffered += n;
       this.stats.maxBuffered = Math.max(this.stats.maxBuffered, this.stats.buffered);
       if (this.stats.buffered >= this.opts.batchRows || (this.opts.flushAtMessages && this.queue.length >= this.opts.flushAtMessages)) void this.flush();
       else if (!this.timer) this.timer = this.clock.setTimeout(() => void this.flush(), this.opts.flushMs);
@@ -113,9 +127,9 @@ export class ReadingWriter {
         batch.push(p);
         n += p.n;
       }
-      for (;;) {
+      for (let attempt = 0; ; attempt++) {
         try {
-          await this.commit(batch);
+          await this.commit(batch, attempt > 0);
           break;
         } catch (err) {
           this.stats.failures++;
@@ -137,26 +151,37 @@ export class ReadingWriter {
     }
   }
 
-  private async commit(batch: Pending[]): Promise<void> {
+  /** Three round trips on a first attempt (begin, COPY, update + commit); a retry checks what is stored first. */
+  private async commit(batch: Pending[], retry: boolean): Promise<void> {
     const client = await this.pool.connect();
     try {
       await client.query('begin');
-      // A retry after a connection lost during COMMIT must not store a batch twice: a message whose
-      // sequence number the board's row already shows was committed (each board's messages are
-      // stored strictly in order, and last_seq moves in the same transaction as its rows).
-      const ids = [...new Set(batch.map((p) => p.controllerId))];
-      const stored = await client.query('select id, last_seq from controllers where id = any($1::int[]) for update', [ids]);
-      const last = new Map<number, number>(stored.rows.map((r: { id: number; last_seq: string }) => [r.id, Number(r.last_seq)]));
-      const todo = this.opts.shared ? batch : batch.filter((p) => p.seq > (last.get(p.controllerId) ?? 0));
+      let todo = batch;
+      let created = false;
+      if (retry && !this.opts.shared) {
+        // A retry after a connection lost during COMMIT must not store a batch twice: a message whose
+        // sequence number the board's row already shows was committed (each board's messages are
+        // stored strictly in order, and last_seq moves in the same transaction as its rows). On a
+        // first attempt nothing in the batch can be stored yet: the gateway let each message through once.
+        // NO KEY UPDATE, not UPDATE: a valve event or command inserted meanwhile checks its foreign
+        // key with a KEY SHARE lock on the same controller row, and must not wait for this COPY.
+        const ids = [...new Set(batch.map((p) => p.controllerId))];
+        const stored = await client.query('select id, last_seq from controllers where id = any($1::int[]) for no key update', [ids]);
+        const last = new Map<number, number>(stored.rows.map((r: { id: number; last_seq: string }) => [r.id, Number(r.last_seq)]));
+        todo = batch.filter((p) => p.seq > (last.get(p.controllerId) ?? 0));
+      }
       const lines = todo.map((p) => p.text);
       if (lines.length && this.opts.shared) {
         // Several instances share the ingest: a message redelivered to another instance after a
         // crash may already be stored, so rows go through a staging table and only new ones land.
-        await client.query('create temp table if not exists readings_in (like readings) on commit delete rows');
+        if (!this.staged.has(client)) {
+          await client.query('create temp table if not exists readings_in (like readings) on commit delete rows');
+          created = true;
+        }
         const stream = client.query(
           copyFrom('copy readings_in (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin'),
         );
-        await pipeline(Readable.from(chunk(lines, 64)), stream);
+        await pipeline(Readable.from(chunk(lines)), stream);
         await client.query(
           `insert into readings select distinct on (r.controller_id, r.at, r.seq, r.board_at) r.* from readings_in r where not exists
              (select 1 from readings x where x.controller_id = r.controller_id and x.at = r.at and x.seq = r.seq and x.board_at = r.board_at)`,
@@ -167,19 +192,22 @@ export class ReadingWriter {
             'copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin',
           ),
         );
-        await pipeline(Readable.from(chunk(lines, 64)), stream);
+        await pipeline(Readable.from(chunk(lines)), stream);
       }
       const maxSeq = new Map<number, number>();
       for (const p of todo) maxSeq.set(p.controllerId, Math.max(maxSeq.get(p.controllerId) ?? 0, p.seq));
-      const upd = [...maxSeq.keys()];
-      if (upd.length) {
-        await client.query(
-          `update controllers c set last_seq = greatest(c.last_seq, v.seq), last_seen_at = now()
-             from unnest($1::int[], $2::bigint[]) as v(id, seq) where c.id = v.id`,
-          [upd, upd.map((i) => maxSeq.get(i))],
-        );
-      }
-      await client.query('commit');
+      // The board's stored sequence number and the commit in one round trip. Ids and sequence
+      // numbers are integers the gateway checked, so they are written into the statement as such.
+      const ids = [...maxSeq.keys()];
+      await client.query(
+        ids.length
+          ? `update controllers c set last_seq = greatest(c.last_seq, v.seq), last_seen_at = now()
+               from unnest('{${ids.map(int).join(',')}}'::int[], '{${ids.map((i) => int(maxSeq.get(i)!)).join(',')}}'::bigint[]) as v(id, seq)
+               where c.id = v.id; commit`
+          : 'commit',
+      );
+      // (kept only once committed: a rolled-back transaction takes the new table with it)
+      if (created) this.staged.add(client);
     } catch (e) {
       await client.query('rollback').catch(() => {});
       throw e;
@@ -195,7 +223,27 @@ export class ReadingWriter {
   }
 }
 
-/** Messages' COPY text in chunks of a few hundred kilobytes. */
-function* chunk(texts: string[], size: number) {
-  for (let i = 0; i < texts.length; i += size) yield texts.slice(i, i + size).join('');
+/** An integer as SQL text; anything else is a bug, never data. */
+function int(n: number): string {
+  if (!Number.isSafeInteger(n)) throw new Error(`not an integer: ${n}`);
+  return String(n);
+}
+
+/**
+ * Messages' COPY text in chunks of about 48 KB: small enough to stay out of V8's large-object
+ * space (a string there is old-generation garbage at once), large enough for few writes.
+ */
+function* chunk(texts: string[], bytes = 48_000) {
+  let part: string[] = [];
+  let size = 0;
+  for (const t of texts) {
+    part.push(t);
+    size += t.length;
+    if (size >= bytes) {
+      yield part.join('');
+      part = [];
+      size = 0;
+    }
+  }
+  if (part.length) yield part.join('');
 }

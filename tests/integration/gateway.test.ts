@@ -91,7 +91,9 @@ describe('message handling', () => {
     await b.publishAsync(t, JSON.stringify({ v: 2, seq: 5, at: new Date().toISOString(), samples: [sample()] }), { qos: 1 });
     await b.publishAsync(topicFor(boardB().serial, 'event'), JSON.stringify({ v: 1, seq: 6, at: new Date().toISOString(), kind: 'relay', relay: 12, open: true, source: 'button', cmdId: null }), { qos: 1 });
     await b.publishAsync(t, Buffer.alloc(20_000, 0x7b), { qos: 1 });
-    expect(stats.dropped.malformed - malformed0).toBe(4);
+    // a board whose clock was never set: year 0 is no time PostgreSQL stores, and must not reach a batch
+    await b.publishAsync(t, JSON.stringify({ v: 1, seq: 7, at: new Date().toISOString(), samples: [{ ...sample(), at: '0000-01-01T00:00:00Z' }] }), { qos: 1 });
+    expect(stats.dropped.malformed - malformed0).toBe(5);
     expect(stats.dropped.oversized - oversized0).toBe(1);
     const before = await readingsOf(boardB().serial);
     await b.publishAsync(t, telemetry(100, 4), { qos: 1 });
@@ -112,8 +114,14 @@ describe('message handling', () => {
     expect(await readingsOf(boardB().serial)).toBe(before + 4);
     expect(stats.dropped.duplicate - dup0).toBe(1);
     expect(stats.gaps - gaps0).toBe(4 + 99); // 101…199 after seq 100, then 201…204
+    // a relay state takes a number from the same counter: the reading after it is no gap
+    const states = topicFor(boardB().serial, 'state');
+    await b.publishAsync(states, JSON.stringify({ v: 1, seq: 206, at: new Date().toISOString(), relays: [{ open: false, since: null, closesAt: null, cmdId: null }] }), { qos: 1, retain: true });
+    await b.publishAsync(t, telemetry(207, 1), { qos: 1 });
+    expect(await readingsOf(boardB().serial)).toBe(before + 5);
+    expect(stats.gaps - gaps0).toBe(4 + 99);
     const r = await w.tdb.db.execute(sql`select last_seq from controllers where serial = ${boardB().serial}`);
-    expect(Number(r.rows[0].last_seq)).toBe(205);
+    expect(Number(r.rows[0].last_seq)).toBe(207);
     b.end(true);
   });
 
