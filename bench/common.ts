@@ -34,10 +34,12 @@ export async function benchDb(label: string): Promise<BenchDb> {
   };
 }
 
+/** The server's settings in a benchmark; the writer's READING_* settings may be tried from the environment. */
 export function benchConfig(url: string, extra: Record<string, string> = {}): Config {
+  const tried = Object.fromEntries(Object.entries(process.env).filter(([k]) => k.startsWith('READING_')));
   return loadConfig({
     NODE_ENV: 'test', DATABASE_URL: url, PORT: '0', MQTT_PORT: '0', SIM_PORT: '0', WEATHER_PORT: '0', LOG_LEVEL: 'error',
-    LOGIN_RATE_LIMIT: '10000', SCHEDULER: '0', OFFLINE_AFTER_SECONDS: '3600', ...extra,
+    LOGIN_RATE_LIMIT: '10000', SCHEDULER: '0', OFFLINE_AFTER_SECONDS: '3600', ...tried, ...extra,
   });
 }
 

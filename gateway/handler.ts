@@ -88,10 +88,14 @@ export class ProtocolHandler {
       return this.drop(who, 'malformed', 'not JSON');
     }
     const parsed = schemaFor[t.kind].safeParse(json);
+    json = undefined;
     if (!parsed.success) {
       return this.drop(who, 'malformed', parsed.error.issues.slice(0, 3).map((i) => `${i.path.join('.')}: ${i.message}`).join('; '));
     }
-    const msg = parsed.data as { seq?: number };
+    // Only the sink keeps the message while it is stored: this frame waits for the commit holding
+    // its sequence number alone, so a busy fleet's waiting messages do not outlive a young GC.
+    let data: unknown = parsed.data;
+    const msg = { seq: (parsed.data as { seq?: number }).seq };
     const serial = t.serial;
     // Each kind of fact is de-duplicated in its own lane: readings, valve facts, acknowledgements.
     const lane = t.kind === 'telemetry' ? 'r' : t.kind === 'ack' ? 'a' : 'v';
@@ -117,7 +121,7 @@ export class ProtocolHandler {
     }
     if (t.kind === 'ack') {
       // Nothing to store and nothing stored depends on it: an acknowledgement never waits.
-      await this.deliver(serial, t.kind, parsed.data, receivedAt);
+      await this.deliver(serial, t.kind, data, receivedAt);
       this.stats.accepted++;
       return { ok: true };
     }
@@ -126,7 +130,9 @@ export class ProtocolHandler {
     const prev = this.chains.get(laneKey) ?? Promise.resolve();
     const mine = prev.catch(() => {}).then(() => {
       if (this.poisoned.has(serial)) throw new Error('an earlier message from this board was not stored');
-      return this.deliver(serial, t.kind, parsed.data, receivedAt);
+      const d = data;
+      data = undefined;
+      return this.deliver(serial, t.kind, d, receivedAt);
     });
     this.chains.set(laneKey, mine);
     try {

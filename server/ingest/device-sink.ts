@@ -131,39 +131,36 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       if (!b) return;
       const at = serverTime(b, e.at, receivedAt);
       const zoneId = b.zoneByRelay.get(e.relay) ?? null;
-      b.lastSeenAt = receivedAt.getTime();
-      // The browsers see the change at once; the record follows. The board keeps the event until
-      // it is stored (its acknowledgement waits for this), and a resend shows the same state again.
-      // With shared ingest an older event can arrive after a newer one: stored for the history,
-      // but a relay's live state follows only its newest event.
-      const relayKey = `${b.controllerId}:${e.relay}`;
-      const shown = appliedSeq.get(relayKey);
-      const newest = shown === undefined || e.seq >= shown || shown - e.seq >= 1_000_000; // (a far lower one is a board that restarted)
-      const r = b.relays[e.relay - 1];
-      if (newest) {
-        appliedSeq.set(relayKey, e.seq);
-        if (r) {
-          r.open = e.open;
-          r.since = e.open ? at.getTime() : null;
-          if (!e.open) r.plannedEnd = null;
-          r.cmdId = e.cmdId;
-        }
-        bus.publish({
-          type: 'valve', siteId: b.siteId, controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open,
-          at: at.toISOString(), source: e.source,
-          since: r?.since ? new Date(r.since).toISOString() : null,
-          plannedEnd: r?.plannedEnd ? new Date(r.plannedEnd).toISOString() : null,
-        });
-      }
       // One row per board and sequence number: a resend (or a second instance's copy) stores nothing.
       // The board's stored sequence number moves with its readings only (see ReadingWriter).
+      // Recorded first, then shown: whoever sees a valve change can find it in the history.
       const stored = await storeEvent({
         controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open, source: e.source,
         commandId: e.cmdId && /^[0-9a-f-]{36}$/.test(e.cmdId) ? e.cmdId : null,
         seq: e.seq, boardAt: new Date(e.at), at, receivedAt,
       });
-      // Zone runs and alerts move once per event, and only from its newest state.
-      if (stored && newest) listener?.relayChanged(b, e, at.getTime());
+      if (!stored) return;
+      b.lastSeenAt = receivedAt.getTime();
+      // With shared ingest an older event can arrive after a newer one: stored for the history,
+      // but a relay's live state follows only its newest event.
+      const relayKey = `${b.controllerId}:${e.relay}`;
+      const shown = appliedSeq.get(relayKey);
+      if (shown !== undefined && e.seq < shown && shown - e.seq < 1_000_000) return; // (a far lower one is a board that restarted)
+      appliedSeq.set(relayKey, e.seq);
+      const r = b.relays[e.relay - 1];
+      if (r) {
+        r.open = e.open;
+        r.since = e.open ? at.getTime() : null;
+        if (!e.open) r.plannedEnd = null;
+        r.cmdId = e.cmdId;
+      }
+      listener?.relayChanged(b, e, at.getTime());
+      bus.publish({
+        type: 'valve', siteId: b.siteId, controllerId: b.controllerId, zoneId, relay: e.relay, open: e.open,
+        at: at.toISOString(), source: e.source,
+        since: r?.since ? new Date(r.since).toISOString() : null,
+        plannedEnd: r?.plannedEnd ? new Date(r.plannedEnd).toISOString() : null,
+      });
     },
 
     async relayState(serial, s: RelayState, receivedAt) {
@@ -204,10 +201,12 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
         text += copyLine(b.controllerId, atMs === boardMs ? x.at : new Date(atMs).toISOString(), x.at, recvIso, seq, x);
         lastAtMs = atMs;
       }
-      await writer.writeText(b.controllerId, seq, text, samples.length);
+      const last = samples[samples.length - 1];
+      const n = samples.length;
+      samples = []; // (let the message go while the commit is awaited; only its newest sample is needed)
+      await writer.writeText(b.controllerId, seq, text, n);
       b.lastSeenAt = recvMs;
       if (!b.online) await setOnline(b, true, receivedAt);
-      const last = samples[samples.length - 1];
       // Shared ingest can hand an older message over after a newer one: it is stored, but the
       // live picture (latest reading, rain) only moves forward in time.
       if (b.latest && lastAtMs < b.latest.atMs) return;
