@@ -1,4 +1,5 @@
 import DataLoader from 'dataloader';
+import { sql, type Column, type SQL } from 'drizzle-orm';
 
 /**
  * Calls made in the same turn of the event loop go to the database together. When thousands of
@@ -28,4 +29,12 @@ export function batchedLoad<K, V>(load: (keys: readonly K[]) => Promise<Map<K, V
     const found = await load(keys);
     return keys.map((k) => found.get(k) ?? null);
   }, maxBatchSize);
+}
+
+/**
+ * `column = any($1::int[])`: one array parameter for a batch of ids. (drizzle's inArray sends one
+ * parameter per id, and building and parsing thousands of them costs more than the query.)
+ */
+export function inIds(column: Column, ids: readonly number[], type: 'int' | 'bigint' = 'int'): SQL {
+  return sql`${column} = any(${sql.param([...ids])}::${sql.raw(type)}[])`;
 }

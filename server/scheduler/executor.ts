@@ -1,7 +1,7 @@
 import { and, asc, eq, inArray, sql } from 'drizzle-orm';
 import type { Logger } from 'pino';
 import type { Clock } from '../clock';
-import { batchedLoad, batchedWrite } from '../db/batch';
+import { batchedLoad, batchedWrite, inIds } from '../db/batch';
 import type { Db } from '../db/client';
 import { controllers, programZones, programs, readings, runs, sites, zoneRuns, zones, type Site, type ZoneRun } from '../db/schema/index';
 import { usableSupply } from '../domain/hydraulics';
@@ -36,10 +36,10 @@ export class RunExecutor {
   constructor(private d: ExecDeps) {}
 
   // Zones that start together share their queries (see db/batch.ts).
-  private siteById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(sites).where(inArray(sites.id, [...ids]))).map((s) => [s.id, s])));
-  private zoneById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(zones).where(inArray(zones.id, [...ids]))).map((z) => [z.id, z])));
+  private siteById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(sites).where(inIds(sites.id, ids))).map((s) => [s.id, s])));
+  private zoneById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(zones).where(inIds(zones.id, ids))).map((z) => [z.id, z])));
   private delayAt = batchedLoad((ids: readonly number[]) => activeRainDelays(this.d.db, ids, this.d.clock.now()));
-  private markRunning = batchedWrite((ids: readonly number[]) => this.d.db.update(zoneRuns).set({ state: 'running' }).where(inArray(zoneRuns.id, [...ids])));
+  private markRunning = batchedWrite((ids: readonly number[]) => this.d.db.update(zoneRuns).set({ state: 'running' }).where(inIds(zoneRuns.id, ids)));
   private markStarted = batchedWrite((xs: readonly { id: number; at: number; commandId?: string }[]) =>
     this.d.db.execute(sql`
       update zone_runs z set actual_start = coalesce(v.at, z.actual_start), command_id = coalesce(v.command_id, z.command_id)

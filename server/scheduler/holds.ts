@@ -1,4 +1,5 @@
-import { and, eq, gt, inArray, isNull, lte } from 'drizzle-orm';
+import { and, eq, gt, isNull, lte } from 'drizzle-orm';
+import { inIds } from '../db/batch';
 import { DateTime } from 'luxon';
 import type { Db } from '../db/client';
 import { rainDelays, type Site } from '../db/schema/index';
@@ -26,7 +27,7 @@ export async function activeRainDelays(db: Db, siteIds: readonly number[], nowMs
   const rows = await db
     .select()
     .from(rainDelays)
-    .where(and(inArray(rainDelays.siteId, [...siteIds]), isNull(rainDelays.cancelledAt), lte(rainDelays.startsAt, new Date(nowMs)), gt(rainDelays.until, new Date(nowMs))))
+    .where(and(inIds(rainDelays.siteId, siteIds), isNull(rainDelays.cancelledAt), lte(rainDelays.startsAt, new Date(nowMs)), gt(rainDelays.until, new Date(nowMs))))
     .orderBy(rainDelays.until);
   const m = new Map<number, RainDelay>();
   for (const r of rows) if (!m.has(r.siteId)) m.set(r.siteId, r);

@@ -10,6 +10,9 @@ import type { ValveDispatcher } from '../services/dispatcher';
 import { occurrences } from './calendar';
 import { RunExecutor } from './executor';
 
+/** How far past the window the next start of a program is looked for (then looked for again). */
+const LOOK_FOR_NEXT_MS = 24 * 3_600_000;
+
 /** The advisory lock key that makes one instance the dispatcher ("RUNNEL" in ASCII). */
 export const SCHEDULER_LOCK_KEY = 0x52554e4e454c;
 
@@ -45,6 +48,8 @@ export class Scheduler {
   private stopped = false;
   private ticking = false;
   readonly stats = { ticks: 0, runsCreated: 0, leaderSince: null as number | null };
+  /** Per program: the first start after the window last looked at (or when to look again), and the calendar it came from. */
+  private nextStart = new Map<number, { key: string; at: number }>();
 
   constructor(private d: SchedulerDeps) {
     this.executor = new RunExecutor({ db: d.db, dispatcher: d.dispatcher, fleet: d.fleet, bus: d.bus, clock: d.clock, log: d.log, isLeader: () => this.leader && !this.stopped });
@@ -99,6 +104,7 @@ export class Scheduler {
       }
       if (r.rows[0].ok) {
         this.leader = true;
+        this.nextStart.clear(); // the catch-up window looks back past what is known
         this.stats.leaderSince = this.d.clock.now();
         this.d.log.info('this instance now dispatches schedules');
         this.lastTick = this.d.clock.now() - (this.d.catchUpMs ?? 120_000);
@@ -139,6 +145,13 @@ export class Scheduler {
         .innerJoin(sites, eq(programs.siteId, sites.id))
         .where(eq(programs.enabled, true));
       for (const { program, site } of list) {
+        // Most programs have no start in this window: the next one is known, so cron is not asked
+        // again until the window reaches it (or the program's calendar or the site's timezone changes).
+        const key = JSON.stringify([program.startTimes, program.dayRule, program.activeFrom, program.activeTo, site.timezone]);
+        const known = this.nextStart.get(program.id);
+        if (known && known.key === key && known.at > ahead) continue;
+        const next = occurrences(program, site.timezone, ahead, ahead + LOOK_FOR_NEXT_MS)[0];
+        this.nextStart.set(program.id, { key, at: next ?? ahead + LOOK_FOR_NEXT_MS });
         for (const t of occurrences(program, site.timezone, from, ahead)) {
           const [created] = await this.d.db
             .insert(runs)
