@@ -7,9 +7,9 @@ import { controllers, programZones, programs, readings, runs, sites, zoneRuns, z
 import { usableSupply } from '../domain/hydraulics';
 import type { Fleet } from '../fleet/fleet';
 import type { LiveBus } from '../live/bus';
-import type { ValveDispatcher, ZoneOutcome } from '../services/dispatcher';
+import type { PreparedStart, ValveDispatcher, ZoneOutcome } from '../services/dispatcher';
 import { dayRestriction, windowConflict } from './calendar';
-import { activeRainDelays, siteHold } from './holds';
+import { activeRainDelay, activeRainDelays, siteHold } from './holds';
 import { zoneMinutes } from './minutes';
 import { planRun, type PlanZone } from './planner';
 
@@ -24,6 +24,9 @@ export type ExecDeps = {
   isLeader: () => boolean;
 };
 
+/** A zone's look-ups and command record are made this long before its start. */
+const PREPARE_AHEAD_MS = 3000;
+
 type Done = { state: ZoneRun['state']; reason?: string };
 
 /** Turns one run into zone runs and walks them through the dispatcher. */
@@ -33,7 +36,14 @@ export class RunExecutor {
   /** Per site: resolvers that end a run's remaining zones when it rains. */
   private rainWaiters = new Map<number, Set<() => void>>();
 
-  constructor(private d: ExecDeps) {}
+  /** Per site: bumped by every hold event (rain, dry, a delay set or cancelled, on any instance). */
+  private holdEpoch = new Map<number, number>();
+
+  constructor(private d: ExecDeps) {
+    d.bus.subscribeAll((e) => {
+      if (e.type === 'hold') this.holdEpoch.set(e.siteId, (this.holdEpoch.get(e.siteId) ?? 0) + 1);
+    });
+  }
 
   // Zones that start together share their queries (see db/batch.ts).
   private siteById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(sites).where(inIds(sites.id, ids))).map((s) => [s.id, s])));
@@ -206,23 +216,58 @@ export class RunExecutor {
     this.d.bus.publish({ type: 'zone_run', siteId: zr.siteId, runId: zr.runId, zoneId: zr.zoneId, zoneRunId: zr.id, state: d.state, reason: d.reason ?? null });
   }
 
-  /** Wait for the slot, re-check holds and windows, open through the dispatcher, record the outcome. */
+  /**
+   * Wait for the slot, re-check holds and windows, open through the dispatcher, record the outcome.
+   * A few seconds before the start everything that needs the database is done (site, zone, rain
+   * delay, the command record), so at the start itself only memory is checked and the command
+   * sent: thousands of zones due in the same second all leave on time. What can change in those
+   * seconds is checked again: the rain sensor and holds (a hold at the site wakes the zone, or
+   * makes it look again), the clock (a late start checks its window again), soil moisture.
+   */
   private async runZone(zr: ZoneRun, site0: Site): Promise<void> {
-    const woke = await this.sleepUntil(zr.plannedStart.getTime(), site0.id);
-    if (!this.d.isLeader()) return;
-    const site = (await this.siteById(site0.id)) ?? site0;
-    const now = this.d.clock.now();
-    const hold = await siteHold(this.d.db, this.d.fleet, site, now, (id) => this.delayAt(id));
-    if (hold || woke === 'rain') return this.finishZone(zr, { state: 'held_rain', reason: hold?.reason ?? 'Held by rain' }, null, null);
+    const startAt = zr.plannedStart.getTime();
     const seconds = Math.max(1, Math.round(zr.plannedMinutes * 60));
-    const w = windowConflict(site.restrictions, now, now + seconds * 1000, site.timezone);
-    if (w) return this.finishZone(zr, { state: 'skipped_restriction', reason: w }, null, null);
+    let woke = await this.sleepUntil(startAt - PREPARE_AHEAD_MS, site0.id);
+    if (!this.d.isLeader()) return;
+    let epoch = this.holdEpoch.get(site0.id) ?? 0;
+    let site = (await this.siteById(site0.id)) ?? site0;
+    let delay = await this.delayAt(site.id);
     const zone = await this.zoneById(zr.zoneId);
+    const planned = { start: startAt, end: startAt + seconds * 1000 };
+    const plannedWindow = windowConflict(site.restrictions, planned.start, planned.end, site.timezone);
+    let prepared: PreparedStart | null = null;
+    if (woke !== 'rain') {
+      // (a zone that cannot be prepared is started the plain way, and fails then with its reason)
+      if (!plannedWindow) prepared = await this.d.dispatcher.prepare({ zoneId: zr.zoneId, seconds, origin: 'program' }).catch(() => null);
+      woke = await this.sleepUntil(startAt, site0.id);
+    }
+    const giveUp = (why: string) => prepared?.cancel(why).catch((err) => this.d.log.warn({ err }, 'prepared command not cancelled'));
+    if (!this.d.isLeader()) return void (await giveUp('this server no longer dispatches'));
+    const now = this.d.clock.now();
+    if ((this.holdEpoch.get(site0.id) ?? 0) !== epoch || (delay && delay.until.getTime() <= now)) {
+      // a hold began or ended at the site meanwhile: look again
+      epoch = this.holdEpoch.get(site0.id) ?? 0;
+      site = (await this.siteById(site0.id)) ?? site;
+      delay = await activeRainDelay(this.d.db, site.id, now);
+    }
+    const hold = await siteHold(this.d.db, this.d.fleet, site, now, async () => delay);
+    if (hold || woke === 'rain') {
+      await giveUp('held by rain');
+      return this.finishZone(zr, { state: 'held_rain', reason: hold?.reason ?? 'Held by rain' }, null, null);
+    }
+    // The window check walks the run's minutes: the same minutes give the same answer.
+    const sameMinutes = Math.floor(now / 60_000) === Math.floor(planned.start / 60_000) && Math.floor((now + seconds * 1000) / 60_000) === Math.floor(planned.end / 60_000);
+    const w = sameMinutes ? plannedWindow : windowConflict(site.restrictions, now, now + seconds * 1000, site.timezone);
+    if (w) {
+      await giveUp(w);
+      return this.finishZone(zr, { state: 'skipped_restriction', reason: w }, null, null);
+    }
     const board = this.d.fleet.getById(zr.controllerId);
     if (zone?.moistureThresholdPct && board?.latest && board.latest.moisturePct >= zone.moistureThresholdPct) {
-      return this.finishZone(zr, { state: 'held_rain', reason: `Held: soil moisture ${board.latest.moisturePct.toFixed(0)} % is above this zone’s ${zone.moistureThresholdPct} %` }, null, null);
+      const reason = `Held: soil moisture ${board.latest.moisturePct.toFixed(0)} % is above this zone’s ${zone.moistureThresholdPct} %`;
+      await giveUp(reason);
+      return this.finishZone(zr, { state: 'held_rain', reason }, null, null);
     }
-    await this.markRunning(zr.id);
     let opened: number | null = null;
     const outcome = new Promise<Done & { end: number }>((resolve) => {
       const on = (o: ZoneOutcome) => {
@@ -242,8 +287,12 @@ export class RunExecutor {
         };
         resolve({ ...map[o.why], end: o.at });
       };
-      this.d.dispatcher
-        .start({ zoneId: zr.zoneId, seconds, origin: 'program', onOutcome: on })
+      // Recorded as running before the command leaves, so a restart never starts this zone run twice.
+      this.markRunning(zr.id)
+        .then(() => {
+          const req = { zoneId: zr.zoneId, seconds, origin: 'program' as const, onOutcome: on };
+          return prepared ? prepared.fire(on) : this.d.dispatcher.start(req);
+        })
         .then((r) => this.markStarted({ id: zr.id, at: 0, commandId: r.commandId }))
         .catch((e: Error) => resolve({ state: 'failed', reason: e.message, end: this.d.clock.now() }));
     });

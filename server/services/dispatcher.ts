@@ -30,6 +30,9 @@ export type StartRequest = {
   onOutcome?: (o: ZoneOutcome) => void;
 };
 
+/** A start whose look-ups and command record are done (see ValveDispatcher.prepare). */
+export type PreparedStart = { commandId: string; fire(onOutcome?: (o: ZoneOutcome) => void): Promise<StartResult>; cancel(why: string): Promise<void> };
+
 export type StartResult = { commandId: string; state: 'sent' | 'queued'; reason?: string; zoneId: number };
 
 type Active = {
@@ -48,6 +51,8 @@ type Active = {
   closeWhy?: 'completed' | 'stopped' | 'rain';
   done?: boolean;
 };
+
+type ZoneInfo = { zone: typeof zones.$inferSelect; controller: typeof controllers.$inferSelect; site: typeof sites.$inferSelect };
 
 type CommandRow = Pick<typeof commands.$inferInsert, 'id' | 'controllerId' | 'zoneId' | 'op' | 'relay' | 'maxOnSeconds' | 'origin' | 'requestedBy'> & { state: 'queued' };
 
@@ -83,7 +88,7 @@ export class ValveDispatcher implements ValveListener {
   constructor(private d: DispatcherDeps) {}
 
   // Thousands of zones starting in the same second share their queries (see db/batch.ts).
-  private zoneInfo = batchedLoad(async (ids: readonly number[]) => {
+  private zoneInfo = batchedLoad(async (ids: readonly number[]): Promise<Map<number, ZoneInfo>> => {
     const rows = await this.d.db
       .select({ zone: zones, controller: controllers, site: sites })
       .from(zones)
@@ -133,28 +138,70 @@ export class ValveDispatcher implements ValveListener {
   async start(req: StartRequest): Promise<StartResult> {
     const row = await this.zoneInfo(req.zoneId);
     if (!row) throw notFound('Zone');
+    return this.begin(req, row, null);
+  }
+
+  /**
+   * A start known ahead (a program's zone): the look-ups and the command record are done now, so
+   * when the moment comes `fire` only checks memory and sends. `cancel` records why it never fired.
+   */
+  async prepare(req: StartRequest): Promise<PreparedStart> {
+    const row = await this.zoneInfo(req.zoneId);
+    if (!row) throw notFound('Zone');
+    const commandId = randomUUID();
+    await this.recordCommand({
+      id: commandId, controllerId: row.controller.id, zoneId: req.zoneId, op: 'open', relay: row.zone.relay,
+      maxOnSeconds: req.seconds + this.d.failsafeMarginS, origin: req.origin, requestedBy: req.actor?.userId || null, state: 'queued',
+    });
+    let used = false;
+    return {
+      commandId,
+      fire: (onOutcome) => {
+        if (used) return Promise.reject(new Error('this start was already used'));
+        used = true;
+        return this.begin({ ...req, onOutcome: onOutcome ?? req.onOutcome }, row, commandId);
+      },
+      cancel: async (why) => {
+        if (used) return;
+        used = true;
+        await this.dropCommand(commandId, 'cancelled', why);
+      },
+    };
+  }
+
+  private async dropCommand(id: string, state: 'cancelled' | 'failed', why: string) {
+    await this.d.db.update(commands).set({ state, error: why.slice(0, 300) }).where(eq(commands.id, id));
+  }
+
+  /** The start itself; `recorded` is the id of a command already recorded (a prepared start). */
+  private async begin(req: StartRequest, row: ZoneInfo, recorded: string | null): Promise<StartResult> {
     const board = this.d.fleet.getById(row.controller.id) ?? (await this.d.fleet.refresh(row.controller.id));
     if (!board || !board.online) {
-      throw conflict('controller_offline', `${row.controller.name} is offline; the valve cannot be opened until it reconnects`);
+      const why = `${row.controller.name} is offline; the valve cannot be opened until it reconnects`;
+      if (recorded) await this.dropCommand(recorded, 'failed', why).catch(() => {});
+      throw conflict('controller_offline', why);
     }
     const s = this.site(row.site.id);
     const flowLpm = row.zone.headCount * row.zone.flowPerHeadLpm;
     const existing = s.active.get(req.zoneId);
     if (existing && existing.state !== 'closing') {
-      // Already running: extend from now.
+      // Already running: extend from now (under the command already open).
+      if (recorded) await this.dropCommand(recorded, 'cancelled', 'the zone was already open; its run was extended').catch(() => {});
       existing.seconds = req.seconds;
       await this.openRelay(board, existing, true);
       return { commandId: existing.commandId, state: 'sent', zoneId: req.zoneId };
     }
-    const commandId = randomUUID();
+    const commandId = recorded ?? randomUUID();
     const item: Queued = {
       zoneId: req.zoneId, controllerId: board.controllerId, relay: row.zone.relay, flowLpm, commandId,
       seconds: req.seconds, origin: req.origin, actor: req.actor ?? null, onOutcome: req.onOutcome, queuedAt: this.d.clock.now(),
     };
-    await this.recordCommand({
-      id: commandId, controllerId: board.controllerId, zoneId: req.zoneId, op: 'open', relay: row.zone.relay,
-      maxOnSeconds: req.seconds + this.d.failsafeMarginS, origin: req.origin, requestedBy: req.actor?.userId || null, state: 'queued',
-    });
+    if (!recorded) {
+      await this.recordCommand({
+        id: commandId, controllerId: board.controllerId, zoneId: req.zoneId, op: 'open', relay: row.zone.relay,
+        maxOnSeconds: req.seconds + this.d.failsafeMarginS, origin: req.origin, requestedBy: req.actor?.userId || null, state: 'queued',
+      });
+    }
     const usable = usableSupply(row.site.supplyFlowLpm, row.site.supplyMarginPct);
     const blocker = s.queue.length ? 'other zones are waiting ahead of it' : this.blocker(s, board, item, usable);
     if (blocker) {

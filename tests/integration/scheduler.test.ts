@@ -204,6 +204,31 @@ describe('scheduler on a virtual clock, with the simulator', { timeout: 90_000 }
     expect(second[0].reason).toMatch(/Not needed yet/);
     await w.tdb.db.update(programs).set({ enabled: false });
   });
+
+  it('holds a zone already prepared for its start when a rain delay comes in the last seconds, and cancels its command', async () => {
+    const a3 = await zoneId(w.tdb, 'A3 hedge');
+    const t0 = DateTime.fromMillis(w.clock.now(), { zone: tz }).startOf('minute');
+    const start = t0.plus({ hours: 1 });
+    const p = await addProgram(w.tdb, w.f.siteA, 'Late delay', [start.toFormat('HH:mm')], [[a3, 2]]);
+    const earlier = (await w.tdb.db.execute(sql`select count(*)::int as n from commands where zone_id = ${a3}`)).rows[0].n as number;
+    await w.runUntil(start.toMillis() - 2000, 60_000);
+    // prepared: the open command is recorded before the start
+    const prepared = await w.tdb.db.execute(sql`select id, state from commands where zone_id = ${a3} order by created_at offset ${earlier}`);
+    expect(prepared.rows.map((r) => r.state)).toEqual(['queued']);
+    const mgr = await sessionCookie(w.rt.url, w.f.users.manager.email);
+    expect((await request(w.rt.url).post(`/api/sites/${w.f.siteA}/rain-delay`).set('cookie', mgr).send({ hours: 1, reason: 'cloudburst' })).status).toBe(201);
+    const opensBefore = w.sim.board('TEST-A-0001').energizeLog.length;
+    await w.runUntil(start.plus({ minutes: 5 }).toMillis(), 60_000);
+    const [r] = await runsOf(w.tdb, p);
+    const [zr] = await zoneRunsOf(w.tdb, r.id);
+    expect(zr.state).toBe('held_rain');
+    expect(zr.reason).toMatch(/Rain delay until .*cloudburst/);
+    expect(w.sim.board('TEST-A-0001').energizeLog.length).toBe(opensBefore);
+    const after = await w.tdb.db.execute(sql`select state, error from commands where id = ${prepared.rows[0].id}`);
+    expect(after.rows[0]).toEqual({ state: 'cancelled', error: 'held by rain' });
+    expect((await request(w.rt.url).delete(`/api/sites/${w.f.siteA}/rain-delay`).set('cookie', mgr)).status).toBe(200);
+    await w.tdb.db.update(programs).set({ enabled: false });
+  });
 });
 
 describe('restarts and several instances', { timeout: 90_000 }, () => {
