@@ -18,6 +18,9 @@ function authError(code: 4 | 5, message: string): AuthenticateError {
   return Object.assign(new Error(message), { returnCode: code }) as AuthenticateError;
 }
 
+/** Messages aedes delivers at once before it queues them (see createBroker below). */
+export const MAX_MESSAGES_IN_DELIVERY = 1_000_000;
+
 /**
  * Aedes on loopback. Boards authenticate with serial + secret; each may publish only under its
  * own topics and subscribe only to its own command topic. Board messages are consumed inside
@@ -33,6 +36,10 @@ export async function startEmbeddedBroker(opts: {
 }): Promise<EmbeddedBroker> {
   const { handler, sink, log } = opts;
   const broker = await Aedes.createBroker({
+    // Messages past aedes' concurrency wait in a queue that is drained recursively: ten thousand
+    // commands, or their acknowledgements, in one second overflowed the stack. Each message is
+    // already bounded by its sender (a board waits for its PUBACK; commands wait for their slot).
+    concurrency: MAX_MESSAGES_IN_DELIVERY,
     heartbeatInterval: 60_000,
     connectTimeout: 15_000,
     authenticate: (client: Client, username, password, done) => {

@@ -32,8 +32,23 @@ const RECENT_CAP = 120;
 export class Fleet {
   private bySerial = new Map<string, BoardLive>();
   private byId = new Map<number, BoardLive>();
+  /** Per site and per zone, rebuilt after a board is added, changed or removed (thousands of zones start at once). */
+  private index: { bySite: Map<number, BoardLive[]>; byZone: Map<number, { board: BoardLive; relay: number }> } | null = null;
 
   constructor(private db: Db) {}
+
+  private indexed() {
+    if (!this.index) {
+      const bySite = new Map<number, BoardLive[]>();
+      const byZone = new Map<number, { board: BoardLive; relay: number }>();
+      for (const b of this.byId.values()) {
+        bySite.set(b.siteId, [...(bySite.get(b.siteId) ?? []), b]);
+        for (const [relay, z] of b.zoneByRelay) byZone.set(z, { board: b, relay });
+      }
+      this.index = { bySite, byZone };
+    }
+    return this.index;
+  }
 
   async load(): Promise<void> {
     const cs = await this.db.select().from(controllers).where(isNull(controllers.retiredAt));
@@ -49,6 +64,7 @@ export class Fleet {
       if (old) {
         this.byId.delete(controllerId);
         this.bySerial.delete(old.serial);
+        this.index = null;
       }
       return null;
     }
@@ -86,6 +102,7 @@ export class Fleet {
     if (old && old.serial !== c.serial) this.bySerial.delete(old.serial);
     this.byId.set(c.id, b);
     this.bySerial.set(c.serial, b);
+    this.index = null;
     return b;
   }
 
@@ -99,11 +116,10 @@ export class Fleet {
     return [...this.byId.values()];
   }
   ofSite(siteId: number): BoardLive[] {
-    return this.all().filter((b) => b.siteId === siteId);
+    return [...(this.indexed().bySite.get(siteId) ?? [])];
   }
   relayOfZone(zoneId: number): { board: BoardLive; relay: number } | null {
-    for (const b of this.byId.values()) for (const [relay, z] of b.zoneByRelay) if (z === zoneId) return { board: b, relay };
-    return null;
+    return this.indexed().byZone.get(zoneId) ?? null;
   }
 
   pushRecent(b: BoardLive, p: RecentPoint) {

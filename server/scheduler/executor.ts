@@ -24,8 +24,8 @@ export type ExecDeps = {
   isLeader: () => boolean;
 };
 
-/** A zone's look-ups and command record are made this long before its start. */
-const PREPARE_AHEAD_MS = 3000;
+/** A zone's look-ups and command record are made this long before its start (ten thousand take a few seconds). */
+const PREPARE_AHEAD_MS = 10_000;
 
 type Done = { state: ZoneRun['state']; reason?: string };
 
@@ -218,7 +218,7 @@ export class RunExecutor {
 
   /**
    * Wait for the slot, re-check holds and windows, open through the dispatcher, record the outcome.
-   * A few seconds before the start everything that needs the database is done (site, zone, rain
+   * Ten seconds before the start everything that needs the database is done (site, zone, rain
    * delay, the command record), so at the start itself only memory is checked and the command
    * sent: thousands of zones due in the same second all leave on time. What can change in those
    * seconds is checked again: the rain sensor and holds (a hold at the site wakes the zone, or

@@ -10,6 +10,12 @@ import type { ValveDispatcher } from '../services/dispatcher';
 import { occurrences } from './calendar';
 import { RunExecutor } from './executor';
 
+/**
+ * Runs are planned this far ahead of their start (zone runs, minutes, holds at planning), so a
+ * thousand programs due at once are planned well before the minute, not during it.
+ */
+const DEFAULT_LOOKAHEAD_MS = 60_000;
+
 /** How far past the window the next start of a program is looked for (then looked for again). */
 const LOOK_FOR_NEXT_MS = 24 * 3_600_000;
 
@@ -134,7 +140,7 @@ export class Scheduler {
       this.stats.ticks++;
       if (!(await this.ensureLeadership())) return;
       const now = this.d.clock.now();
-      const ahead = now + (this.d.lookaheadMs ?? Math.max(2 * (this.d.tickMs ?? 1000), 5000));
+      const ahead = now + (this.d.lookaheadMs ?? Math.max(2 * (this.d.tickMs ?? 1000), DEFAULT_LOOKAHEAD_MS));
       // Overlapping windows: a program saved just before its start is still found; the unique
       // (program, start) key keeps a start that is found twice from running twice.
       const from = this.lastTick ?? now - 1000;

@@ -1,5 +1,6 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import mqtt, { type MqttClient } from 'mqtt';
+import { randomUUID } from 'node:crypto';
 import { sql } from 'drizzle-orm';
 import { topicFor } from '../../server/contracts/protocol';
 import { startLiveWorld, until, type LiveWorld } from '../helpers/live';
@@ -76,6 +77,20 @@ describe('topic ACL', () => {
     await closed; // the broker drops a board that breaks its ACL
     expect(await readingsOf(boardB().serial)).toBe(before);
     expect(w.rt.gateway.stats.dropped.acl_publish).toBeGreaterThan(0);
+  });
+});
+
+describe('many messages at once', () => {
+  it('delivers twenty thousand commands published in one moment without overflowing the broker', async () => {
+    const close = () => ({ v: 1 as const, id: randomUUID(), op: 'close' as const, relay: 1, at: new Date().toISOString() });
+    const sends: Promise<void>[] = [];
+    // (a load check: the stack overflow this guards against was seen in the schedule benchmark,
+    // where 10,000 zones start in one second; this test does not recreate its exact timing)
+    for (let i = 0; i < 200; i++) sends.push(w.rt.gateway.send(boardA().serial, close()));
+    for (let i = 0; i < 20_000; i++) sends.push(w.rt.gateway.send('TEST-Z-0404', close()));
+    await Promise.all(sends);
+    expect(w.rt.gateway.stats.commandsSent).toBeGreaterThanOrEqual(20_200);
+    expect((await fetch(`${w.rt.url}/api/health`)).status).toBe(200);
   });
 });
 
