@@ -5,12 +5,8 @@ import { Readable } from 'node:stream';
 import type { Logger } from 'pino';
 import type { Clock } from '../clock';
 
-export type ReadingRow = {
-  controllerId: number;
-  at: Date;
-  boardAt: Date;
-  receivedAt: Date;
-  seq: number;
+/** One reading's values, as a board's sample carries them (times are written beside them). */
+export type ReadingValues = {
   rain: boolean;
   moistureRaw: number;
   moisturePct: number;
@@ -31,18 +27,12 @@ export type WriterStats = {
   maxBuffered: number;
 };
 
-const ts = (d: Date) => d.toISOString();
-
 /**
  * One COPY line of the readings table. Times are ISO 8601 strings PostgreSQL accepts (the
- * protocol's own, already checked, or Date#toISOString); numbers are finite.
+ * protocol's own, already checked, or Date#toISOString); numbers are finite (the protocol checked them).
  */
-export function copyLine(controllerId: number, at: string, boardAt: string, receivedAt: string, seq: number, s: Omit<ReadingRow, 'controllerId' | 'at' | 'boardAt' | 'receivedAt' | 'seq'>): string {
+export function copyLine(controllerId: number, at: string, boardAt: string, receivedAt: string, seq: number, s: ReadingValues): string {
   return `${controllerId}\t${at}\t${boardAt}\t${receivedAt}\t${seq}\t${s.rain ? 't' : 'f'}\t${s.moistureRaw}\t${s.moisturePct}\t${s.supplyV}\t${s.flowLpm === null ? '\\N' : s.flowLpm}\t${s.rssi}\n`;
-}
-
-function toCopyLine(r: ReadingRow): string {
-  return copyLine(r.controllerId, ts(r.at), ts(r.boardAt), ts(r.receivedAt), r.seq, r);
 }
 
 /**
@@ -79,14 +69,7 @@ export class ReadingWriter {
     },
   ) {}
 
-  /** Resolves once the rows are committed. */
-  write(controllerId: number, seq: number, rows: ReadingRow[]): Promise<void> {
-    let text = '';
-    for (const r of rows) text += toCopyLine(r);
-    return this.writeText(controllerId, seq, text, rows.length);
-  }
-
-  /** Like write, with the rows already as COPY text (one line each, columns as in `copyLine`). */
+  /** Queue one board message's rows, as COPY text (one line each, from `copyLine`); resolves once they are committed. */
   writeText(controllerId: number, seq: number, text: string, n: number): Promise<void> {
     if (this.closed) return Promise.reject(new Error('writer closed'));
     if (this.stats.buffered + n > this.opts.maxBufferedRows) {
