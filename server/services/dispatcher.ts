@@ -50,6 +50,8 @@ type Active = {
   onOutcome?: (o: ZoneOutcome) => void;
   closeWhy?: 'completed' | 'stopped' | 'rain';
   done?: boolean;
+  /** The board's sequence number on the acknowledgement that opened it: a relay state older than that predates the open. */
+  openedSeq?: number;
 };
 
 type ZoneInfo = { zone: typeof zones.$inferSelect; controller: typeof controllers.$inferSelect; site: typeof sites.$inferSelect };
@@ -254,7 +256,8 @@ export class ValveDispatcher implements ValveListener {
         v: 1, id: a.commandId, op: 'open', relay: a.relay, maxOnSeconds: a.seconds + this.d.failsafeMarginS, minGapMs: board.staggerMs, at: new Date(this.d.clock.now()).toISOString(),
       });
       const relayOpen = board.relays[a.relay - 1]?.open;
-      await this.sendWithAck(board, cmd, !relayOpen && !extend);
+      const ack = await this.sendWithAck(board, cmd, !relayOpen && !extend);
+      a.openedSeq = ack.seq;
       if (this.stopped) return;
       const now = this.d.clock.now();
       if (a.state === 'closing' || a.done) {
@@ -306,7 +309,7 @@ export class ValveDispatcher implements ValveListener {
    * closer than that, whatever the network does to the timing. So the next relay's command need
    * not wait for this one's acknowledgement, and a board's zones start the stagger apart.
    */
-  private async sendWithAck(board: BoardLive, make: () => Command, energise: boolean): Promise<void> {
+  private async sendWithAck(board: BoardLive, make: () => Command, energise: boolean): Promise<Ack> {
     const attempts = 1 + this.d.retries;
     let lastErr = 'no acknowledgement';
     for (let i = 0; i < attempts; i++) {
@@ -329,7 +332,7 @@ export class ValveDispatcher implements ValveListener {
       });
       await this.markSent({ id: cmd.id, attempts: i + 1, at: new Date(this.d.clock.now()) }).catch(() => {});
       const a = await ack;
-      if (a?.ok) return;
+      if (a?.ok) return a;
       if (a && !a.ok) throw new Error(`the board refused: ${a.error ?? 'no reason given'}`);
       lastErr = `no acknowledgement from ${board.name} after ${i + 1} tries`;
     }
@@ -482,7 +485,9 @@ export class ValveDispatcher implements ValveListener {
       const a = s.active.get(zoneId);
       if (r.open && !a) {
         s.active.set(zoneId, this.adopted(board, relay, zoneId, 'adopted', r.closesAt ? Date.parse(r.closesAt) + board.clockOffsetMs : null));
-      } else if (!r.open && a && a.state === 'open') {
+      } else if (!r.open && a && a.state === 'open' && !(a.openedSeq !== undefined && st.seq < a.openedSeq)) {
+        // (a state the board sent before it opened this relay can arrive after the acknowledgement,
+        // which skips the queue of valve facts: it says nothing about the valve now)
         this.finish(board, a, { kind: 'closed', at: this.d.clock.now(), why: 'board' });
       }
     });

@@ -59,6 +59,25 @@ describe('manual valve control', () => {
     live.close();
   });
 
+  it('keeps a zone open when a relay state the board sent before opening it arrives after the acknowledgement', async () => {
+    const live = await liveClient(w.rt.url, cookies.manager);
+    await live.waitFor((m) => m.type === 'snapshot');
+    const res = await api('manager').post(`/api/zones/${w.f.zoneA}/start`, { minutes: 2 });
+    expect(res.status).toBe(202);
+    await live.waitFor((m) => m.type === 'command' && m.commandId === res.body.commandId && m.state === 'acked');
+    const board = w.rt.services.fleet.getById(w.f.controllerA)!;
+    const closed = { open: false, since: null, closesAt: null, cmdId: null };
+    // the ack skips the queue of valve facts, so an older state can still be on its way
+    w.rt.services.dispatcher.relayState(board, { v: 1, seq: 1, at: new Date().toISOString(), relays: Array.from({ length: board.relayCount }, () => closed) });
+    const zone = () => w.rt.services.dispatcher.siteActivity(w.f.siteA).active.find((a) => a.zoneId === w.f.zoneA);
+    expect(zone()?.state).toBe('open');
+    expect(sim.board('TEST-A-0001').relayStates().find((r) => r.relay === 1)?.open).toBe(true);
+    expect((await api('manager').post(`/api/zones/${w.f.zoneA}/stop`)).status).toBe(202);
+    await live.waitFor((m) => m.type === 'valve' && m.zoneId === w.f.zoneA && m.open === false);
+    await until(() => !zone(), 5000);
+    live.close();
+  });
+
   it('records a manual start as a run of its own with a zone run, for the history', async () => {
     const r = await until(async () => (await w.tdb.db.execute(sql`select r.kind, zr.state, zr.actual_minutes, zr.estimated_litres from zone_runs zr join runs r on r.id = zr.run_id where zr.zone_id = ${w.f.zoneA} and r.kind = 'manual' and zr.state <> 'running' order by zr.id limit 1`)).rows[0]);
     expect(r.kind).toBe('manual');
