@@ -485,9 +485,7 @@ export class ValveDispatcher implements ValveListener {
       const a = s.active.get(zoneId);
       if (r.open && !a) {
         s.active.set(zoneId, this.adopted(board, relay, zoneId, 'adopted', r.closesAt ? Date.parse(r.closesAt) + board.clockOffsetMs : null));
-      } else if (!r.open && a && a.state === 'open' && !(a.openedSeq !== undefined && st.seq < a.openedSeq)) {
-        // (a state the board sent before it opened this relay can arrive after the acknowledgement,
-        // which skips the queue of valve facts: it says nothing about the valve now)
+      } else if (!r.open && a && a.state === 'open' && !staleState(st.seq, a.openedSeq)) {
         this.finish(board, a, { kind: 'closed', at: this.d.clock.now(), why: 'board' });
       }
     });
@@ -558,3 +556,12 @@ const round1 = (v: number) => Math.round(v * 10) / 10;
 
 /** A JavaScript array as one PostgreSQL array parameter. */
 const pgArray = <T>(xs: T[]) => sql.param(xs);
+
+/**
+ * A state the board sent before it opened this relay can arrive after the acknowledgement (which
+ * skips the queue of valve facts): it says nothing about the valve now. A far lower number is a
+ * board that restarted (it counts from its power-on clock), and its relays are really off.
+ */
+function staleState(stateSeq: number, openedSeq: number | undefined): boolean {
+  return openedSeq !== undefined && stateSeq < openedSeq && openedSeq - stateSeq < 1_000_000;
+}

@@ -65,10 +65,13 @@ describe('manual valve control', () => {
     const res = await api('manager').post(`/api/zones/${w.f.zoneA}/start`, { minutes: 2 });
     expect(res.status).toBe(202);
     await live.waitFor((m) => m.type === 'command' && m.commandId === res.body.commandId && m.state === 'acked');
+    await live.waitFor((m) => m.type === 'valve' && m.zoneId === w.f.zoneA && m.open === true);
+    // the board acknowledged, then reported the open: a state numbered well before both was sent before it opened
+    const opened = Number((await w.tdb.db.execute(sql`select max(seq) as seq from valve_events where zone_id = ${w.f.zoneA} and open`)).rows[0].seq);
     const board = w.rt.services.fleet.getById(w.f.controllerA)!;
     const closed = { open: false, since: null, closesAt: null, cmdId: null };
     // the ack skips the queue of valve facts, so an older state can still be on its way
-    w.rt.services.dispatcher.relayState(board, { v: 1, seq: 1, at: new Date().toISOString(), relays: Array.from({ length: board.relayCount }, () => closed) });
+    w.rt.services.dispatcher.relayState(board, { v: 1, seq: opened - 10, at: new Date().toISOString(), relays: Array.from({ length: board.relayCount }, () => closed) });
     const zone = () => w.rt.services.dispatcher.siteActivity(w.f.siteA).active.find((a) => a.zoneId === w.f.zoneA);
     expect(zone()?.state).toBe('open');
     expect(sim.board('TEST-A-0001').relayStates().find((r) => r.relay === 1)?.open).toBe(true);
