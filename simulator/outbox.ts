@@ -1,10 +1,10 @@
 import type { MessageKind } from '../server/contracts/protocol';
 
-/** A board→server message, serialised when it was made (so its seq and at never change). */
+/** A board→server message. Its seq and at are fixed when it is made; the text is written then or, for valve messages, when it is handed over. */
 export type Outgoing = {
   kind: Exclude<MessageKind, 'cmd'>;
   topic: string;
-  payload: string;
+  payload: string | (() => string);
   retain: boolean;
   /** Sensor samples it carries (telemetry only). */
   samples: number;

@@ -24,7 +24,10 @@ export type UplinkBoard = {
   firmware: string;
   relayCount: number;
   boardIso(): string;
-  relays(): RelayState['relays'];
+  /** Board time now, in ms (its clock, skewed or not). */
+  boardMs(): number;
+  /** The relays as they are now; formatted when called (see `send`). */
+  relaysLater(): () => RelayState['relays'];
   networkUp(): boolean;
   onCommand(payload: Buffer): void;
 };
@@ -96,6 +99,7 @@ export class Uplink {
   /** With a link: a retained online:false, then a clean disconnect. */
   async close(): Promise<void> {
     this.settleStart();
+    Uplink.handOver(true);
     const c = this.client;
     if (!c) return;
     if (this.linkUp) {
@@ -118,21 +122,29 @@ export class Uplink {
     this.send({ kind: 'telemetry', topic: topicFor(this.b.serial, 'telemetry'), payload: JSON.stringify(m), retain: false, samples: samples.length });
   }
 
+  // Valve messages fix their sequence number and time now and are written out when handed over.
   event(relay: number, open: boolean, source: RelaySource, cmdId: string | null): void {
-    const m: BoardEvent = { v: PROTOCOL_VERSION, seq: this.nextSeq(), at: this.b.boardIso(), kind: 'relay', relay, open, source, cmdId };
-    this.send({ kind: 'event', topic: topicFor(this.b.serial, 'event'), payload: JSON.stringify(m), retain: false, samples: 0 });
+    const seq = this.nextSeq();
+    const atMs = this.b.boardMs();
+    const m = (): BoardEvent => ({ v: PROTOCOL_VERSION, seq, at: new Date(atMs).toISOString(), kind: 'relay', relay, open, source, cmdId });
+    this.send({ kind: 'event', topic: topicFor(this.b.serial, 'event'), payload: () => JSON.stringify(m()), retain: false, samples: 0 });
   }
 
   ack(id: string, ok: boolean, error?: string): void {
-    const m: Ack = { v: PROTOCOL_VERSION, id, ok, ...(error ? { error } : {}), seq: this.nextSeq(), at: this.b.boardIso() };
-    this.send({ kind: 'ack', topic: topicFor(this.b.serial, 'ack'), payload: JSON.stringify(m), retain: false, samples: 0 });
+    const seq = this.nextSeq();
+    const atMs = this.b.boardMs();
+    const m = (): Ack => ({ v: PROTOCOL_VERSION, id, ok, ...(error ? { error } : {}), seq, at: new Date(atMs).toISOString() });
+    this.send({ kind: 'ack', topic: topicFor(this.b.serial, 'ack'), payload: () => JSON.stringify(m()), retain: false, samples: 0 });
   }
 
   /** Retained relay state. Without a link none is made: a fresh one follows the reconnect. */
   state(): void {
     if (!this.linkUp) return;
-    const m: RelayState = { v: PROTOCOL_VERSION, seq: this.nextSeq(), at: this.b.boardIso(), relays: this.b.relays() };
-    this.send({ kind: 'state', topic: topicFor(this.b.serial, 'state'), payload: JSON.stringify(m), retain: true, samples: 0 });
+    const seq = this.nextSeq();
+    const atMs = this.b.boardMs();
+    const relays = this.b.relaysLater();
+    const m = (): RelayState => ({ v: PROTOCOL_VERSION, seq, at: new Date(atMs).toISOString(), relays: relays() });
+    this.send({ kind: 'state', topic: topicFor(this.b.serial, 'state'), payload: () => JSON.stringify(m()), retain: true, samples: 0 });
   }
 
   private status(): void {
@@ -140,10 +152,34 @@ export class Uplink {
     this.send({ kind: 'status', topic: topicFor(this.b.serial, 'status'), payload: JSON.stringify(m), retain: true, samples: 0 });
   }
 
-  /** Hand a message to mqtt.js now, or keep it in the offline buffer. */
+  /**
+   * Messages made (sequence number and time fixed) but not yet handed to mqtt.js, for every
+   * board in this process, in the order they were made. A real board switches its relay whatever
+   * its network stack is doing, and each board has a processor of its own; here a thousand boards
+   * share one, so a board's replies are handed over once the commands that arrived together have
+   * all been carried out, or a relay would wait for other boards' publishing.
+   */
+  private static pending: { up: Uplink; m: Outgoing }[] = [];
+
+  /** A few hundred at a time, so that relay timers due meanwhile run between the rounds. */
+  private static handOver(all = false): void {
+    const xs = all ? Uplink.pending : Uplink.pending.slice(0, 256);
+    Uplink.pending = all ? [] : Uplink.pending.slice(xs.length);
+    for (const { up, m } of xs) up.publish(m);
+    if (Uplink.pending.length) setImmediate(Uplink.handOver);
+  }
+
   private send(m: Outgoing): void {
+    Uplink.pending.push({ up: this, m });
+    if (Uplink.pending.length === 1) setImmediate(Uplink.handOver);
+  }
+
+  /** Hand a message to mqtt.js now, or keep it in the offline buffer. */
+  private publish(m0: Outgoing): void {
+    const payload = typeof m0.payload === 'function' ? m0.payload() : m0.payload;
+    const m = { ...m0, payload };
     if (!this.linkUp || !this.client) return this.outbox.push(m);
-    this.client.publish(m.topic, m.payload, { qos: 1, retain: m.retain }, (err) => {
+    this.client.publish(m.topic, payload, { qos: 1, retain: m.retain }, (err) => {
       if (err) return this.log?.warn({ serial: this.b.serial, kind: m.kind, err: err.message }, 'publish abandoned');
       this.counters.published[m.kind]++;
       this.counters.samplesSent += m.samples;
