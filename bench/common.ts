@@ -1,5 +1,7 @@
 import pg from 'pg';
 import { randomBytes } from 'node:crypto';
+import fs from 'node:fs';
+import path from 'node:path';
 import { createDb, type DbHandle } from '../server/db/client';
 import { runMigrations } from '../server/db/migrate';
 import { loadConfig, type Config } from '../server/config';
@@ -51,3 +53,24 @@ export function percentile(xs: number[], p: number): number {
 
 export const round = (v: number, d = 1) => Math.round(v * 10 ** d) / 10 ** d;
 export const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
+
+/** BENCH_PROFILE=dir: a CPU profile and an allocation profile of the server's process over a window the benchmark chooses. */
+export async function startProfile() {
+  const inspector = await import('node:inspector/promises');
+  const session = new inspector.Session();
+  session.connect();
+  await session.post('Profiler.enable');
+  await session.post('Profiler.start');
+  await session.post('HeapProfiler.enable');
+  await session.post('HeapProfiler.startSampling', { samplingInterval: 64 * 1024 });
+  return {
+    async stop(file: string) {
+      const { profile } = await session.post('Profiler.stop');
+      const { profile: heap } = await session.post('HeapProfiler.stopSampling');
+      fs.mkdirSync(path.dirname(file), { recursive: true });
+      fs.writeFileSync(file, JSON.stringify(profile));
+      fs.writeFileSync(file.replace(/\.cpuprofile$/, '.heapprofile'), JSON.stringify(heap));
+      session.disconnect();
+    },
+  };
+}

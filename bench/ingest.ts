@@ -6,7 +6,7 @@ import readline from 'node:readline';
 import { sql } from 'drizzle-orm';
 import WebSocket from 'ws';
 import { startRuntime } from '../server/runtime';
-import { benchConfig, benchDb, percentile, round, sleep } from './common';
+import { benchConfig, benchDb, percentile, round, sleep, startProfile } from './common';
 import { BENCH_PASSWORD, buildFleet } from './fleet-world';
 
 export type IngestResult = {
@@ -143,25 +143,4 @@ export async function benchRawCopy(rows = 1_000_000): Promise<number> {
   client.release();
   await db.drop();
   return Math.round(rows / secs);
-}
-
-/** BENCH_PROFILE=dir: a CPU profile and an allocation profile of the server's process over the measuring window only. */
-async function startProfile() {
-  const inspector = await import('node:inspector/promises');
-  const session = new inspector.Session();
-  session.connect();
-  await session.post('Profiler.enable');
-  await session.post('Profiler.start');
-  await session.post('HeapProfiler.enable');
-  await session.post('HeapProfiler.startSampling', { samplingInterval: 64 * 1024 });
-  return {
-    async stop(file: string) {
-      const { profile } = await session.post('Profiler.stop');
-      const { profile: heap } = await session.post('HeapProfiler.stopSampling');
-      fs.mkdirSync(path.dirname(file), { recursive: true });
-      fs.writeFileSync(file, JSON.stringify(profile));
-      fs.writeFileSync(file.replace(/\.cpuprofile$/, '.heapprofile'), JSON.stringify(heap));
-      session.disconnect();
-    },
-  };
 }

@@ -8,7 +8,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import readline from 'node:readline';
-import { benchConfig, benchDb, percentile, round, sleep } from './common';
+import { benchConfig, benchDb, percentile, round, sleep, startProfile } from './common';
 import { buildFleet } from './fleet-world';
 
 export type ScheduleResult = { zones: number; controllers: number; latenessP50Ms: number; latenessP99Ms: number; minStaggerGapMs: number; staggerSettingMs: number; opened: number };
@@ -30,7 +30,7 @@ export async function benchSchedule(opts: { zones?: number; staggerMs?: number }
   // the boards in a process of their own, as in the ingest benchmark, so they do not share the server's core
   const fleetFile = path.join(os.tmpdir(), `runnel-bench-schedule-${boardsN}.json`);
   fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
-  const child = spawn(process.execPath, ['--import', 'tsx', 'bench/sim-child.ts', fleetFile, rt.mqttUrl!, '300000', '1'], {
+  const child = spawn(process.execPath, [...(process.env.BENCH_PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_PROFILE}`] : []), '--import', 'tsx', 'bench/sim-child.ts', fleetFile, rt.mqttUrl!, '300000', '1'], {
     stdio: ['ignore', 'pipe', 'inherit'],
     env: { ...process.env, SIM_REPORT_ENERGIZE: '1' },
   });
@@ -64,7 +64,12 @@ export async function benchSchedule(opts: { zones?: number; staggerMs?: number }
     await db.db.insert(programZones).values((zoneBySite.get(siteId) ?? []).map((zoneId, i) => ({ programId: p.id, zoneId, minutes: 1, position: i + 1, cycleSoak: 'off' as const })));
   }
   const startMs = start.toMillis();
-  await sleep(Math.max(0, startMs - Date.now()) + 15_000);
+  // BENCH_PROFILE=dir: profile the server from 12 s before the start (the zones' preparation) to 8 s after
+  await sleep(Math.max(0, startMs - 12_000 - Date.now()));
+  const profiler = process.env.BENCH_PROFILE ? await startProfile() : null;
+  await sleep(Math.max(0, startMs + 8_000 - Date.now()));
+  if (profiler) await profiler.stop(path.join(process.env.BENCH_PROFILE!, `schedule-${zonesTotal}.cpuprofile`));
+  await sleep(Math.max(0, startMs + 15_000 - Date.now()));
   // stop the boards (their relay start times come back with their totals); the runs' end is not measured
   child.kill('SIGINT');
   const { energized } = (await waitFor('done')) as { energized: Record<string, number[]> };

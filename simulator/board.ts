@@ -1,4 +1,4 @@
-import { MAX_SAMPLES_PER_TELEMETRY, commandSchema, type Command, type Sample } from '../server/contracts/protocol';
+import { MAX_SAMPLES_PER_TELEMETRY, MAX_START_AHEAD_MS, commandSchema, type Command, type Sample } from '../server/contracts/protocol';
 import { realClock, type Clock } from './clock';
 import { FaultState, type FaultChange, type FaultView } from './faults';
 import { SensorModel, nominalFlowLpm } from './physics';
@@ -106,7 +106,13 @@ export class SimBoard {
         firmware: spec.firmware ?? 'sim-1.0.0',
         relayCount: spec.relayCount,
         boardIso: () => this.boardIso(),
-        relays: () => this.relayStates().map(({ open, since, closesAt, cmdId }) => ({ open, since, closesAt, cmdId })),
+        boardMs: () => this.clock.now() + this.faultState.skewMinutes * 60_000,
+        relaysLater: () => {
+          const snap = this.bank.snapshot();
+          const skew = this.faultState.skewMinutes * 60_000;
+          const iso = (ms: number | null) => (ms === null ? null : new Date(ms + skew).toISOString());
+          return () => snap.map((r) => ({ open: r.open, since: iso(r.sinceMs), closesAt: iso(r.closesAtMs), cmdId: r.cmdId }));
+        },
         networkUp: () => !this.faultState.offline,
         onCommand: (payload) => this.onCommand(payload),
       },
@@ -277,9 +283,12 @@ export class SimBoard {
         }
       }
     }
-    if (cmd.op === 'open' && cmd.minGapMs && this.bank.has(cmd.relay) && !this.bank.isOpen(cmd.relay)) {
+    // A start sent ahead: board time, so this board's own clock (skewed or not) decides.
+    const startAtMs = cmd.op === 'open' && cmd.startAt ? Date.parse(cmd.startAt) - this.faultState.skewMinutes * 60_000 : -Infinity;
+    if (startAtMs > this.clock.now() + MAX_START_AHEAD_MS) return this.answer(cmd.id, { ok: false, error: 'start time too far ahead of this board’s clock' }, []);
+    if (cmd.op === 'open' && (cmd.minGapMs || startAtMs > this.clock.now()) && this.bank.has(cmd.relay) && !this.bank.isOpen(cmd.relay)) {
       const now = this.clock.now();
-      const at = Math.max(now, this.lastEnergiseAt() + cmd.minGapMs);
+      const at = Math.max(now, startAtMs, this.lastEnergiseAt() + (cmd.minGapMs ?? 0));
       this.promisedEnergiseAt = Math.max(this.promisedEnergiseAt, at);
       if (at > now) {
         const prev = this.waitingOpens.get(cmd.relay);
@@ -290,7 +299,7 @@ export class SimBoard {
         // Timers may fire a millisecond early against the wall clock: wait out the remainder.
         const fire = () => {
           const log = this.bank.energizeLog;
-          const due = Math.max(at, log.length ? log[log.length - 1].atMs + cmd.minGapMs! : -Infinity);
+          const due = Math.max(at, log.length ? log[log.length - 1].atMs + (cmd.minGapMs ?? 0) : -Infinity);
           const left = due - this.clock.now();
           if (left > 0) return void (this.waitingOpens.get(cmd.relay)!.timer = this.clock.setTimeout(fire, left));
           this.waitingOpens.delete(cmd.relay);

@@ -3,7 +3,7 @@ import type { Logger } from 'pino';
 import type { Clock } from '../clock';
 import { batchedLoad, batchedWrite, inIds } from '../db/batch';
 import type { Db } from '../db/client';
-import { controllers, programZones, programs, readings, runs, sites, zoneRuns, zones, type Site, type ZoneRun } from '../db/schema/index';
+import { commands, controllers, programZones, programs, readings, runs, sites, valveEvents, zoneRuns, zones, type Site, type ZoneRun } from '../db/schema/index';
 import { usableSupply } from '../domain/hydraulics';
 import type { Fleet } from '../fleet/fleet';
 import type { LiveBus } from '../live/bus';
@@ -26,6 +26,8 @@ export type ExecDeps = {
 
 /** A zone's look-ups and command record are made this long before its start (ten thousand take a few seconds). */
 const PREPARE_AHEAD_MS = 10_000;
+/** A prepared zone's command leaves this long before its start, naming the start; the board waits and opens on time. */
+const SEND_AHEAD_MS = 5_000;
 
 type Done = { state: ZoneRun['state']; reason?: string };
 
@@ -38,10 +40,34 @@ export class RunExecutor {
 
   /** Per site: bumped by every hold event (rain, dry, a delay set or cancelled, on any instance). */
   private holdEpoch = new Map<number, number>();
+  /** Per site: zones whose command waits at the board for its start, told of every hold event. */
+  private holdWatchers = new Map<number, Set<() => void>>();
+
+  /** Until `t`: true at the first hold event at the site, false when the time comes. */
+  private holdEventBefore(t: number, siteId: number): Promise<boolean> {
+    const ms = t - this.d.clock.now();
+    if (ms <= 0) return Promise.resolve(false);
+    return new Promise((resolve) => {
+      const set = this.holdWatchers.get(siteId) ?? new Set();
+      this.holdWatchers.set(siteId, set);
+      const wake = () => {
+        set.delete(wake);
+        this.d.clock.clearTimeout(h);
+        resolve(true);
+      };
+      const h = this.d.clock.setTimeout(() => {
+        set.delete(wake);
+        resolve(false);
+      }, ms);
+      set.add(wake);
+    });
+  }
 
   constructor(private d: ExecDeps) {
     d.bus.subscribeAll((e) => {
-      if (e.type === 'hold') this.holdEpoch.set(e.siteId, (this.holdEpoch.get(e.siteId) ?? 0) + 1);
+      if (e.type !== 'hold') return;
+      this.holdEpoch.set(e.siteId, (this.holdEpoch.get(e.siteId) ?? 0) + 1);
+      for (const w of [...(this.holdWatchers.get(e.siteId) ?? [])]) w();
     });
   }
 
@@ -49,7 +75,8 @@ export class RunExecutor {
   private siteById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(sites).where(inIds(sites.id, ids))).map((s) => [s.id, s])));
   private zoneById = batchedLoad(async (ids: readonly number[]) => new Map((await this.d.db.select().from(zones).where(inIds(zones.id, ids))).map((z) => [z.id, z])));
   private delayAt = batchedLoad((ids: readonly number[]) => activeRainDelays(this.d.db, ids, this.d.clock.now()));
-  private markRunning = batchedWrite((ids: readonly number[]) => this.d.db.update(zoneRuns).set({ state: 'running' }).where(inIds(zoneRuns.id, ids)));
+  // Only a zone run still planned: a start that failed at once may already have recorded its end.
+  private markRunning = batchedWrite((ids: readonly number[]) => this.d.db.update(zoneRuns).set({ state: 'running' }).where(and(inIds(zoneRuns.id, ids), eq(zoneRuns.state, 'planned'))));
   private markStarted = batchedWrite((xs: readonly { id: number; at: number; commandId?: string }[]) =>
     this.d.db.execute(sql`
       update zone_runs z set actual_start = coalesce(v.at, z.actual_start), command_id = coalesce(v.command_id, z.command_id)
@@ -239,11 +266,18 @@ export class RunExecutor {
     if (woke !== 'rain') {
       // (a zone that cannot be prepared is started the plain way, and fails then with its reason)
       if (!plannedWindow) prepared = await this.d.dispatcher.prepare({ zoneId: zr.zoneId, seconds, origin: 'program' }).catch(() => null);
-      woke = await this.sleepUntil(startAt, site0.id);
+      // The zone run names its command before the command can leave, so a restart can always tell
+      // whether the board was ever asked (see reconcile).
+      if (prepared && !(await this.markStarted({ id: zr.id, at: 0, commandId: prepared.commandId }).then(() => true, () => false))) {
+        await prepared.cancel('the zone run could not be recorded').catch(() => {});
+        prepared = null;
+      }
+      woke = await this.sleepUntil(startAt - (prepared ? SEND_AHEAD_MS : 0), site0.id);
     }
     const giveUp = (why: string) => prepared?.cancel(why).catch((err) => this.d.log.warn({ err }, 'prepared command not cancelled'));
     if (!this.d.isLeader()) return void (await giveUp('this server no longer dispatches'));
-    const now = this.d.clock.now();
+    // the checks are made for the moment the zone opens: its start, or now when late
+    const now = Math.max(this.d.clock.now(), startAt);
     if ((this.holdEpoch.get(site0.id) ?? 0) !== epoch || (delay && delay.until.getTime() <= now)) {
       // a hold began or ended at the site meanwhile: look again
       epoch = this.holdEpoch.get(site0.id) ?? 0;
@@ -269,6 +303,8 @@ export class RunExecutor {
       return this.finishZone(zr, { state: 'held_rain', reason }, null, null);
     }
     let opened: number | null = null;
+    /** Set when a hold came between sending the command ahead and the start. */
+    let heldFor: Done | null = null;
     const outcome = new Promise<Done & { end: number }>((resolve) => {
       const on = (o: ZoneOutcome) => {
         if (o.kind === 'opened') {
@@ -276,6 +312,8 @@ export class RunExecutor {
           void this.markStarted({ id: zr.id, at: o.at }).catch((err) => this.d.log.warn({ err }, 'zone run start not recorded'));
           return;
         }
+        if (opened === null && heldFor) return resolve({ ...heldFor, end: o.at });
+        if (o.kind === 'closed' && o.why === 'rain' && opened === null) return resolve({ state: 'held_rain', reason: 'Held by rain: the rain sensor is wet', end: o.at });
         if (o.kind === 'failed') return resolve({ state: 'failed', reason: o.error, end: o.at });
         const map: Record<string, Done> = {
           completed: { state: 'completed' },
@@ -287,15 +325,30 @@ export class RunExecutor {
         };
         resolve({ ...map[o.why], end: o.at });
       };
-      // Recorded as running before the command leaves, so a restart never starts this zone run twice.
-      this.markRunning(zr.id)
-        .then(() => {
-          const req = { zoneId: zr.zoneId, seconds, origin: 'program' as const, onOutcome: on };
-          return prepared ? prepared.fire(on) : this.d.dispatcher.start(req);
-        })
-        .then((r) => this.markStarted({ id: zr.id, at: 0, commandId: r.commandId }))
-        .catch((e: Error) => resolve({ state: 'failed', reason: e.message, end: this.d.clock.now() }));
+      // A prepared start leaves at once: its zone run already names the command. Otherwise the
+      // zone run is recorded as running before the command leaves. Either way a restart never
+      // starts this zone run twice.
+      const req = { zoneId: zr.zoneId, seconds, origin: 'program' as const, onOutcome: on };
+      const started = prepared
+        ? prepared.fire(on, startAt).then((r) => this.markRunning(zr.id).then(() => r))
+        : this.markRunning(zr.id)
+            .then(() => this.d.dispatcher.start(req))
+            .then((r) => this.markStarted({ id: zr.id, at: 0, commandId: r.commandId }).then(() => r));
+      started.catch((e: Error) => resolve({ state: 'failed', reason: e.message, end: this.d.clock.now() }));
     });
+    if (prepared && startAt > this.d.clock.now()) {
+      // Sent ahead: a hold that begins before the start cancels the waiting open at the board.
+      // (the rain sensor itself closes everything at the site: the scheduler's rain handling)
+      void (async () => {
+        while (await this.holdEventBefore(startAt, site0.id)) {
+          const s1 = (await this.siteById(site0.id)) ?? site;
+          const h = await siteHold(this.d.db, this.d.fleet, s1, Math.max(this.d.clock.now(), startAt));
+          if (!h) continue;
+          heldFor = { state: 'held_rain', reason: h.reason };
+          return this.d.dispatcher.cancelWaiting(zr.zoneId, site0.id);
+        }
+      })().catch((err) => this.d.log.warn({ err, zoneRunId: zr.id }, 'hold before the start not applied'));
+    }
     const o = await outcome;
     await this.finishZone(zr, o, opened, opened ? o.end : null);
   }
@@ -342,6 +395,16 @@ export class RunExecutor {
     };
   }
 
+  /** Whether the board reported carrying out this command (its events replay after a reconnect). */
+  private async carriedOut(zoneId: number, commandId: string, plannedStart: Date): Promise<boolean> {
+    const rows = await this.d.db
+      .select({ id: valveEvents.id })
+      .from(valveEvents)
+      .where(and(eq(valveEvents.zoneId, zoneId), sql`${valveEvents.at} >= ${new Date(plannedStart.getTime() - 3_600_000)}`, eq(valveEvents.commandId, commandId)))
+      .limit(1);
+    return rows.length > 0;
+  }
+
   /** After a restart: end or resume what a run left behind, never doubling a zone. */
   async reconcile(sinceMs: number): Promise<{ resumed: number; ended: number }> {
     const open = await this.d.db.select().from(runs).where(and(inArray(runs.state, ['planned', 'running']), sql`${runs.scheduledFor} > ${new Date(sinceMs)}`));
@@ -357,13 +420,33 @@ export class RunExecutor {
         continue;
       }
       const adoptions: Promise<void>[] = [];
-      for (const zr of zrs.filter((z) => z.state === 'running')) {
+      // A zone run that names a command may have been started: it is running, or it was prepared
+      // (its command recorded) and perhaps fired before the last server stopped.
+      const started = zrs.filter((z) => z.state === 'running' || (z.state === 'planned' && z.commandId));
+      const cmdIds = started.map((z) => z.commandId).filter((id): id is string => !!id);
+      const cmds = new Map(cmdIds.length ? (await this.d.db.select().from(commands).where(inArray(commands.id, cmdIds))).map((c) => [c.id, c]) : []);
+      for (const zr of started) {
         const loc = this.d.fleet.relayOfZone(zr.zoneId);
         const relay = loc ? loc.board.relays[loc.relay - 1] : null;
+        const cmd = zr.commandId ? cmds.get(zr.commandId) : undefined;
         const [zone] = await this.d.db.select().from(zones).where(eq(zones.id, zr.zoneId));
-        if (relay?.open && zr.commandId && relay.cmdId === zr.commandId && zr.actualStart) {
-          const plannedEnd = zr.actualStart.getTime() + zr.plannedMinutes * 60_000;
-          const start = zr.actualStart.getTime();
+        const open = !!(relay?.open && zr.commandId && relay.cmdId === zr.commandId);
+        const startedAt = zr.actualStart ?? cmd?.ackedAt ?? cmd?.sentAt ?? (open ? new Date(this.d.clock.now()) : null);
+        if (cmd?.state === 'queued' && !open && !(await this.carriedOut(zr.zoneId, cmd.id, zr.plannedStart))) {
+          // Never recorded as sent and never seen at the board: it did not leave. Plan it again.
+          await this.d.db.update(commands).set({ state: 'cancelled', error: 'the server stopped before this command was sent' }).where(eq(commands.id, cmd.id));
+          await this.d.db.update(zoneRuns).set({ state: 'planned', commandId: null }).where(eq(zoneRuns.id, zr.id));
+          zr.state = 'planned';
+          zr.commandId = null;
+          continue;
+        }
+        if (open && startedAt) {
+          if (zr.state === 'planned') {
+            await this.d.db.update(zoneRuns).set({ state: 'running', actualStart: startedAt }).where(eq(zoneRuns.id, zr.id));
+            zr.state = 'running';
+          }
+          const plannedEnd = startedAt.getTime() + zr.plannedMinutes * 60_000;
+          const start = startedAt.getTime();
           adoptions.push(new Promise<void>((resolve) => {
             this.d.dispatcher.adoptRun(site.id, zr.zoneId, zone.headCount * zone.flowPerHeadLpm, plannedEnd, (o) => {
               if (o.kind === 'closed' || o.kind === 'failed') {
@@ -373,7 +456,8 @@ export class RunExecutor {
           }));
           resumed++;
         } else {
-          await this.finishZone(zr, { state: 'stopped', reason: 'The server restarted during this zone; the board closed the valve by itself' }, zr.actualStart?.getTime() ?? null, zr.actualStart ? Math.min(this.d.clock.now(), zr.actualStart.getTime() + zr.plannedMinutes * 60_000) : null);
+          await this.finishZone(zr, { state: 'stopped', reason: 'The server restarted during this zone; the board closed the valve by itself' }, startedAt?.getTime() ?? null, startedAt ? Math.min(this.d.clock.now(), startedAt.getTime() + zr.plannedMinutes * 60_000) : null);
+          zr.state = 'stopped';
           ended++;
         }
       }

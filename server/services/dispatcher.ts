@@ -28,10 +28,19 @@ export type StartRequest = {
   actor?: Actor | null;
   /** Called as the zone opens, closes or fails (the scheduler records zone runs from this). */
   onOutcome?: (o: ZoneOutcome) => void;
+  /** Server time: open no sooner than this. The command leaves now and the board waits (a program's start sent ahead). */
+  startAt?: number;
 };
 
 /** A start whose look-ups and command record are done (see ValveDispatcher.prepare). */
-export type PreparedStart = { commandId: string; fire(onOutcome?: (o: ZoneOutcome) => void): Promise<StartResult>; cancel(why: string): Promise<void> };
+export type PreparedStart = { commandId: string; fire(onOutcome?: (o: ZoneOutcome) => void, startAt?: number): Promise<StartResult>; cancel(why: string): Promise<void> };
+
+/** The board answered a command with ok:false. */
+export class BoardRefused extends Error {
+  constructor(readonly ack: Ack) {
+    super(`the board refused: ${ack.error ?? 'no reason given'}`);
+  }
+}
 
 export type StartResult = { commandId: string; state: 'sent' | 'queued'; reason?: string; zoneId: number };
 
@@ -52,6 +61,8 @@ type Active = {
   done?: boolean;
   /** The board's sequence number on the acknowledgement that opened it: a relay state older than that predates the open. */
   openedSeq?: number;
+  /** Open no sooner than this (server time); see StartRequest.startAt. */
+  startAt?: number;
 };
 
 type ZoneInfo = { zone: typeof zones.$inferSelect; controller: typeof controllers.$inferSelect; site: typeof sites.$inferSelect };
@@ -158,10 +169,10 @@ export class ValveDispatcher implements ValveListener {
     let used = false;
     return {
       commandId,
-      fire: (onOutcome) => {
+      fire: (onOutcome, startAt) => {
         if (used) return Promise.reject(new Error('this start was already used'));
         used = true;
-        return this.begin({ ...req, onOutcome: onOutcome ?? req.onOutcome }, row, commandId);
+        return this.begin({ ...req, onOutcome: onOutcome ?? req.onOutcome, startAt: startAt ?? req.startAt }, row, commandId);
       },
       cancel: async (why) => {
         if (used) return;
@@ -197,6 +208,7 @@ export class ValveDispatcher implements ValveListener {
     const item: Queued = {
       zoneId: req.zoneId, controllerId: board.controllerId, relay: row.zone.relay, flowLpm, commandId,
       seconds: req.seconds, origin: req.origin, actor: req.actor ?? null, onOutcome: req.onOutcome, queuedAt: this.d.clock.now(),
+      ...(req.startAt ? { startAt: req.startAt } : {}),
     };
     if (!recorded) {
       await this.recordCommand({
@@ -234,10 +246,10 @@ export class ValveDispatcher implements ValveListener {
     void this.openRelay(board, a, false).catch((err) => this.d.log.error({ err }, 'open failed'));
   }
 
-  /** Reserve the next moment a relay on this controller may be energised. */
-  private reserveSlot(board: BoardLive): number {
+  /** Reserve the next moment (not before `notBefore`) a relay on this controller may be energised. */
+  private reserveSlot(board: BoardLive, notBefore = 0): number {
     const now = this.d.clock.now();
-    const t = Math.max(now, this.nextSlot.get(board.controllerId) ?? 0);
+    const t = Math.max(now, notBefore, this.nextSlot.get(board.controllerId) ?? 0);
     this.nextSlot.set(board.controllerId, t + board.staggerMs);
     return t;
   }
@@ -250,16 +262,21 @@ export class ValveDispatcher implements ValveListener {
   private async openRelay(board: BoardLive, a: Active, extend: boolean) {
     const s = this.site(board.siteId);
     try {
-      if (board.masterValveRelay && !extend) await this.ensureMaster(board, a.seconds);
-      else if (board.masterValveRelay) await this.ensureMaster(board, a.seconds);
-      const cmd = (): Command => ({
-        v: 1, id: a.commandId, op: 'open', relay: a.relay, maxOnSeconds: a.seconds + this.d.failsafeMarginS, minGapMs: board.staggerMs, at: new Date(this.d.clock.now()).toISOString(),
+      const notBefore = extend ? 0 : (a.startAt ?? 0);
+      if (board.masterValveRelay) await this.ensureMaster(board, a.seconds, notBefore);
+      const cmd = (slot: number): Command => ({
+        v: 1, id: a.commandId, op: 'open', relay: a.relay, maxOnSeconds: a.seconds + this.d.failsafeMarginS, minGapMs: board.staggerMs,
+        ...(notBefore && slot > this.d.clock.now() ? { startAt: new Date(slot - board.clockOffsetMs).toISOString() } : {}),
+        at: new Date(this.d.clock.now()).toISOString(),
       });
       const relayOpen = board.relays[a.relay - 1]?.open;
-      const ack = await this.sendWithAck(board, cmd, !relayOpen && !extend);
+      const asked = this.d.clock.now();
+      const ack = await this.sendWithAck(board, cmd, !relayOpen && !extend, notBefore);
       a.openedSeq = ack.seq;
       if (this.stopped) return;
-      const now = this.d.clock.now();
+      // The board acknowledges once the relay is on, stamped with its clock (corrected as its
+      // other times are): under load that is earlier than the acknowledgement's arrival.
+      const now = Math.min(this.d.clock.now(), Math.max(asked, Date.parse(ack.at) + board.clockOffsetMs || 0));
       if (a.state === 'closing' || a.done) {
         // Stopped while the open was on its way: the board did open it, and the close already
         // sent decides from here (it finishes the run, or the board's failsafe closes the valve).
@@ -273,13 +290,20 @@ export class ValveDispatcher implements ValveListener {
       const r = board.relays[a.relay - 1];
       if (r) r.plannedEnd = a.plannedEnd;
       if (a.closeTimer) this.d.clock.clearTimeout(a.closeTimer);
-      a.closeTimer = this.d.clock.setTimeout(() => void this.close(a.zoneId, board.siteId, 'completed'), a.seconds * 1000);
+      a.closeTimer = this.d.clock.setTimeout(() => void this.close(a.zoneId, board.siteId, 'completed'), Math.max(0, a.plannedEnd - this.d.clock.now()));
       await this.markAcked({ id: a.commandId, at: new Date(now) });
       this.emitCommand(board, a, 'acked');
       if (!extend) a.onOutcome?.({ kind: 'opened', at: now });
       if (a.actor) await recordAudit(this.d.db, a.actor, { action: 'valve.open', entityType: 'zone', entityId: a.zoneId, siteId: board.siteId, outcome: 'acked', after: { seconds: a.seconds, commandId: a.commandId } });
     } catch (err) {
       const msg = (err as Error).message;
+      if (a.state === 'closing' && err instanceof BoardRefused) {
+        // Closed while the board was still waiting to open it: cancelled, never energised.
+        const why = `${a.closeWhy === 'rain' ? 'held by rain' : 'stopped'} before its start; the board never opened it`;
+        await this.dropCommand(a.commandId, 'cancelled', why).catch(() => {});
+        this.emitCommand(board, a, 'cancelled', why);
+        return this.finish(board, a, { kind: 'closed', at: this.d.clock.now(), why: a.closeWhy === 'completed' || !a.closeWhy ? 'stopped' : a.closeWhy });
+      }
       a.done = true;
       if (s.active.get(a.zoneId) === a) s.active.delete(a.zoneId);
       await this.d.db.update(commands).set({ state: 'failed', error: msg.slice(0, 300) }).where(eq(commands.id, a.commandId)).catch(() => {});
@@ -290,15 +314,20 @@ export class ValveDispatcher implements ValveListener {
     }
   }
 
-  private async ensureMaster(board: BoardLive, seconds: number) {
+  private async ensureMaster(board: BoardLive, seconds: number, notBefore = 0) {
     const relay = board.masterValveRelay!;
-    const want = this.d.clock.now() + (seconds + this.d.failsafeMarginS) * 1000;
+    const want = Math.max(this.d.clock.now(), notBefore) + (seconds + this.d.failsafeMarginS) * 1000;
     const m = this.masters.get(board.controllerId);
     if (m?.open && m.plannedEnd >= want) return;
     const fresh = !m?.open && !board.relays[relay - 1]?.open;
     const id = randomUUID();
     const maxOn = Math.ceil((want - this.d.clock.now()) / 1000) + this.d.failsafeMarginS;
-    await this.sendWithAck(board, () => ({ v: 1, id, op: 'open', relay, maxOnSeconds: maxOn, minGapMs: board.staggerMs, at: new Date(this.d.clock.now()).toISOString() }), fresh);
+    const cmd = (slot: number): Command => ({
+      v: 1, id, op: 'open', relay, maxOnSeconds: maxOn, minGapMs: board.staggerMs,
+      ...(notBefore && slot > this.d.clock.now() ? { startAt: new Date(slot - board.clockOffsetMs).toISOString() } : {}),
+      at: new Date(this.d.clock.now()).toISOString(),
+    });
+    await this.sendWithAck(board, cmd, fresh, notBefore);
     this.masters.set(board.controllerId, { open: true, plannedEnd: want });
   }
 
@@ -307,20 +336,30 @@ export class ValveDispatcher implements ValveListener {
    * waits for its slot on the controller: slots are the controller's stagger apart, and the open
    * command carries the stagger as `minGapMs`, so the board itself never energises two relays
    * closer than that, whatever the network does to the timing. So the next relay's command need
-   * not wait for this one's acknowledgement, and a board's zones start the stagger apart.
+   * not wait for this one's acknowledgement, and a board's zones start the stagger apart. It may
+   * even leave a little before its slot (a quarter of the acknowledgement wait, at most a
+   * second): the board holds it until the gap has passed, so zones that start together leave
+   * together instead of each waiting for a timer of its own.
    */
-  private async sendWithAck(board: BoardLive, make: () => Command, energise: boolean): Promise<Ack> {
+  private async sendWithAck(board: BoardLive, make: (slot: number) => Command, energise: boolean, notBefore = 0): Promise<Ack> {
     const attempts = 1 + this.d.retries;
     let lastErr = 'no acknowledgement';
     for (let i = 0; i < attempts; i++) {
       if (this.stopped) throw new Error('server stopping');
-      if (energise) await this.waitUntil(this.reserveSlot(board));
-      const cmd = make();
+      let slot = 0;
+      if (energise) {
+        slot = this.reserveSlot(board, notBefore);
+        // a start sent ahead leaves now, naming its slot; others leave just before theirs
+        if (!notBefore) await this.waitUntil(slot - Math.min(1000, this.d.ackTimeoutMs / 4));
+      }
+      const cmd = make(slot);
+      // the board answers once the relay is on: the wait for the acknowledgement starts at the slot
+      const wait = this.d.ackTimeoutMs + Math.max(0, slot - this.d.clock.now());
       const ack = new Promise<Ack | null>((resolve) => {
         const timer = this.d.clock.setTimeout(() => {
           this.acks.delete(cmd.id);
           resolve(null);
-        }, this.d.ackTimeoutMs);
+        }, wait);
         this.acks.set(cmd.id, (a) => {
           this.d.clock.clearTimeout(timer);
           this.acks.delete(cmd.id);
@@ -333,7 +372,7 @@ export class ValveDispatcher implements ValveListener {
       await this.markSent({ id: cmd.id, attempts: i + 1, at: new Date(this.d.clock.now()) }).catch(() => {});
       const a = await ack;
       if (a?.ok) return a;
-      if (a && !a.ok) throw new Error(`the board refused: ${a.error ?? 'no reason given'}`);
+      if (a && !a.ok) throw new BoardRefused(a);
       lastErr = `no acknowledgement from ${board.name} after ${i + 1} tries`;
     }
     throw new Error(lastErr);
@@ -376,6 +415,12 @@ export class ValveDispatcher implements ValveListener {
     }
     if (a) this.finish(board, a, { kind: 'closed', at: this.d.clock.now(), why });
     return true;
+  }
+
+  /** A start sent ahead that the board is still waiting to carry out: cancel it (a hold came first). */
+  async cancelWaiting(zoneId: number, siteId: number): Promise<void> {
+    const a = this.site(siteId).active.get(zoneId);
+    if (a && a.state === 'opening') await this.close(zoneId, siteId, 'rain');
   }
 
   /** Close every valve of a site and empty its queue. */

@@ -69,6 +69,12 @@ describe('scheduler on a virtual clock, with the simulator', { timeout: 90_000 }
     const log = board.energizeLog.slice(before).map((e) => e.atMs).sort((a, b) => a - b);
     expect(log.length).toBeGreaterThanOrEqual(3);
     for (let i = 1; i < log.length; i++) expect(log[i] - log[i - 1]).toBeGreaterThanOrEqual(300);
+    // commands leave seconds ahead, but no relay is energised before its zone's planned start
+    for (const z of zr) {
+      const relay = z.zoneId === a1 ? 1 : z.zoneId === a2 ? 2 : 3;
+      const first = board.energizeLog.slice(before).find((e) => e.relay === relay && e.atMs >= z.plannedStart.getTime() - 60_000)!;
+      expect(first.atMs).toBeGreaterThanOrEqual(z.plannedStart.getTime());
+    }
     // supply (usable 48 L/min) and the valve cap of 2, from the recorded actual times
     const flows = new Map([[a1, 30], [a2, 10], [a3, 10]]);
     for (const z of zr) {
@@ -205,16 +211,21 @@ describe('scheduler on a virtual clock, with the simulator', { timeout: 90_000 }
     await w.tdb.db.update(programs).set({ enabled: false });
   });
 
-  it('holds a zone already prepared for its start when a rain delay comes in the last seconds, and cancels its command', async () => {
+  it('holds a zone whose command already waits at the board when a rain delay comes in the last seconds, and cancels it there', async () => {
     const a3 = await zoneId(w.tdb, 'A3 hedge');
     const t0 = DateTime.fromMillis(w.clock.now(), { zone: tz }).startOf('minute');
     const start = t0.plus({ hours: 1 });
     const p = await addProgram(w.tdb, w.f.siteA, 'Late delay', [start.toFormat('HH:mm')], [[a3, 2]]);
     const earlier = (await w.tdb.db.execute(sql`select count(*)::int as n from commands where zone_id = ${a3}`)).rows[0].n as number;
-    await w.runUntil(start.toMillis() - 2000, 60_000);
+    await w.runUntil(start.toMillis() - 7000, 60_000);
     // prepared: the open command is recorded before the start
     const prepared = await w.tdb.db.execute(sql`select id, state from commands where zone_id = ${a3} order by created_at offset ${earlier}`);
     expect(prepared.rows.map((r) => r.state)).toEqual(['queued']);
+    // sent ahead: the board holds it, naming the start, and has not opened the valve
+    await w.runUntil(start.toMillis() - 2000, 1000);
+    const ahead = await w.tdb.db.execute(sql`select state from commands where id = ${prepared.rows[0].id}`);
+    expect(ahead.rows[0].state).toBe('sent');
+    expect(w.sim.board('TEST-A-0001').relayStates().find((r) => r.relay === 3)!.open).toBe(false);
     const mgr = await sessionCookie(w.rt.url, w.f.users.manager.email);
     expect((await request(w.rt.url).post(`/api/sites/${w.f.siteA}/rain-delay`).set('cookie', mgr).send({ hours: 1, reason: 'cloudburst' })).status).toBe(201);
     const opensBefore = w.sim.board('TEST-A-0001').energizeLog.length;
@@ -225,7 +236,7 @@ describe('scheduler on a virtual clock, with the simulator', { timeout: 90_000 }
     expect(zr.reason).toMatch(/Rain delay until .*cloudburst/);
     expect(w.sim.board('TEST-A-0001').energizeLog.length).toBe(opensBefore);
     const after = await w.tdb.db.execute(sql`select state, error from commands where id = ${prepared.rows[0].id}`);
-    expect(after.rows[0]).toEqual({ state: 'cancelled', error: 'held by rain' });
+    expect(after.rows[0]).toEqual({ state: 'cancelled', error: 'held by rain before its start; the board never opened it' });
     expect((await request(w.rt.url).delete(`/api/sites/${w.f.siteA}/rain-delay`).set('cookie', mgr)).status).toBe(200);
     await w.tdb.db.update(programs).set({ enabled: false });
   });
@@ -262,6 +273,30 @@ describe('restarts and several instances', { timeout: 90_000 }, () => {
     expect(dups.rows).toEqual([]);
     expect(zr[0].state).not.toBe('running');
     expect(board.relayStates().every((r) => !r.open)).toBe(true);
+    await w.tdb.db.update(programs).set({ enabled: false });
+  });
+
+  it('runs a zone whose command was prepared but never sent once after a restart, under a fresh command', async () => {
+    const a2 = await zoneId(w.tdb, 'A2 beds');
+    const p = await addProgram(w.tdb, w.f.siteA, 'Prepared', ['07:20'], [[a2, 3]]);
+    const board = w.sim.board('TEST-A-0001');
+    const opensBefore = board.energizeLog.filter((e) => e.relay === 2).length;
+    // eight seconds before the start: prepared (its command recorded, named by the zone run), not yet sent
+    await w.runUntil(local('2026-06-03T07:20') - 20_000, 60_000);
+    await w.runUntil(local('2026-06-03T07:20') - 8000, 1000);
+    const [zr0] = await zoneRunsOf(w.tdb, (await runsOf(w.tdb, p))[0].id);
+    expect(zr0.state).toBe('planned');
+    expect(zr0.commandId).not.toBeNull();
+    await w.restartServer();
+    // (the board reconnects in real time; the virtual clock waits for it)
+    for (let i = 0; i < 100 && !w.rt.services.fleet.all().find((b) => b.serial === 'TEST-A-0001')?.online; i++) await new Promise((r) => setTimeout(r, 100));
+    await w.runUntil(local('2026-06-03T07:40'), 5000);
+    const [zr] = await zoneRunsOf(w.tdb, (await runsOf(w.tdb, p))[0].id);
+    expect([zr.state, zr.reason]).toEqual(['completed', null]);
+    expect(zr.commandId).not.toBe(zr0.commandId);
+    const old = await w.tdb.db.execute(sql`select state, error from commands where id = ${zr0.commandId}`);
+    expect(old.rows[0]).toEqual({ state: 'cancelled', error: 'the server stopped before this command was sent' });
+    expect(board.energizeLog.filter((e) => e.relay === 2).length - opensBefore).toBe(1);
     await w.tdb.db.update(programs).set({ enabled: false });
   });
 
