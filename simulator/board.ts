@@ -1,4 +1,4 @@
-import { MAX_SAMPLES_PER_TELEMETRY, MAX_START_AHEAD_MS, commandSchema, type Command, type Sample } from '../server/contracts/protocol';
+import { MAX_SAMPLES_PER_TELEMETRY, commandSchema, type Command, type Sample } from '../server/contracts/protocol';
 import { realClock, type Clock } from './clock';
 import { FaultState, type FaultChange, type FaultView } from './faults';
 import { SensorModel, nominalFlowLpm } from './physics';
@@ -283,9 +283,8 @@ export class SimBoard {
         }
       }
     }
-    // A start sent ahead: board time, so this board's own clock (skewed or not) decides.
-    const startAtMs = cmd.op === 'open' && cmd.startAt ? Date.parse(cmd.startAt) - this.faultState.skewMinutes * 60_000 : -Infinity;
-    if (startAtMs > this.clock.now() + MAX_START_AHEAD_MS) return this.answer(cmd.id, { ok: false, error: 'start time too far ahead of this board’s clock' }, []);
+    // A start sent ahead counts from the command's arrival: the board's clock plays no part.
+    const startAtMs = cmd.op === 'open' && cmd.startInMs ? this.clock.now() + cmd.startInMs : -Infinity;
     if (cmd.op === 'open' && (cmd.minGapMs || startAtMs > this.clock.now()) && this.bank.has(cmd.relay) && !this.bank.isOpen(cmd.relay)) {
       const now = this.clock.now();
       const at = Math.max(now, startAtMs, this.lastEnergiseAt() + (cmd.minGapMs ?? 0));

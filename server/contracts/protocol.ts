@@ -45,8 +45,8 @@ const v = z.literal(PROTOCOL_VERSION);
 /** Longest start-up gap a command may ask for between two relays. */
 export const MAX_GAP_MS = 60_000;
 
-/** Furthest ahead of its own clock a board accepts an open's `startAt`. */
-export const MAX_START_AHEAD_MS = 60_000;
+/** Furthest ahead a command may be sent before its start. */
+export const MAX_START_IN_MS = 60_000;
 
 /** Longest a command may hold a relay open; the board refuses more. */
 export const MAX_ON_SECONDS = 4 * 3600;
@@ -56,8 +56,8 @@ export const commandSchema = z.discriminatedUnion('op', [
     v, id: z.string().min(8).max(64), op: z.literal('open'), relay: relayNo, maxOnSeconds: z.number().int().min(1).max(MAX_ON_SECONDS),
     /** The board energises this relay no sooner than this long after it last energised any relay (it waits, then acknowledges). */
     minGapMs: z.number().int().min(0).max(MAX_GAP_MS).optional(),
-    /** Board time: energise no sooner than this (a start sent ahead). The board refuses one more than MAX_START_AHEAD_MS ahead of its clock. */
-    startAt: isoTime.optional(),
+    /** A start sent ahead: energise no sooner than this long after the command arrives (no clock involved). */
+    startInMs: z.number().int().min(0).max(MAX_START_IN_MS).optional(),
     at: isoTime,
   }),
   z.strictObject({ v, id: z.string().min(8).max(64), op: z.literal('close'), relay: relayNo, at: isoTime }),

@@ -2,6 +2,7 @@ import { randomUUID } from 'node:crypto';
 import { eq, sql } from 'drizzle-orm';
 import type { Logger } from 'pino';
 import type { Ack, BoardEvent, Command, RelayState } from '../contracts/protocol';
+import { MAX_START_IN_MS } from '../contracts/protocol';
 import type { Clock } from '../clock';
 import type { Db } from '../db/client';
 import { batchedLoad, batchedWrite, inIds } from '../db/batch';
@@ -266,7 +267,7 @@ export class ValveDispatcher implements ValveListener {
       if (board.masterValveRelay) await this.ensureMaster(board, a.seconds, notBefore);
       const cmd = (slot: number): Command => ({
         v: 1, id: a.commandId, op: 'open', relay: a.relay, maxOnSeconds: a.seconds + this.d.failsafeMarginS, minGapMs: board.staggerMs,
-        ...(notBefore && slot > this.d.clock.now() ? { startAt: new Date(slot - board.clockOffsetMs).toISOString() } : {}),
+        ...(notBefore && slot > this.d.clock.now() ? { startInMs: Math.min(MAX_START_IN_MS, Math.round(slot - this.d.clock.now())) } : {}),
         at: new Date(this.d.clock.now()).toISOString(),
       });
       const relayOpen = board.relays[a.relay - 1]?.open;
@@ -324,7 +325,7 @@ export class ValveDispatcher implements ValveListener {
     const maxOn = Math.ceil((want - this.d.clock.now()) / 1000) + this.d.failsafeMarginS;
     const cmd = (slot: number): Command => ({
       v: 1, id, op: 'open', relay, maxOnSeconds: maxOn, minGapMs: board.staggerMs,
-      ...(notBefore && slot > this.d.clock.now() ? { startAt: new Date(slot - board.clockOffsetMs).toISOString() } : {}),
+      ...(notBefore && slot > this.d.clock.now() ? { startInMs: Math.min(MAX_START_IN_MS, Math.round(slot - this.d.clock.now())) } : {}),
       at: new Date(this.d.clock.now()).toISOString(),
     });
     await this.sendWithAck(board, cmd, fresh, notBefore);
