@@ -163,7 +163,7 @@ export class Uplink {
 
   /** A few hundred at a time, so that relay timers due meanwhile run between the rounds. */
   private static handOver(all = false): void {
-    const xs = all ? Uplink.pending : Uplink.pending.slice(0, 256);
+    const xs = all ? Uplink.pending : Uplink.pending.slice(0, 64);
     Uplink.pending = all ? [] : Uplink.pending.slice(xs.length);
     for (const { up, m } of xs) up.publish(m);
     if (Uplink.pending.length) setImmediate(Uplink.handOver);

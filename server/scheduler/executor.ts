@@ -26,8 +26,12 @@ export type ExecDeps = {
 
 /** A zone's look-ups and command record are made this long before its start (ten thousand take a few seconds). */
 const PREPARE_AHEAD_MS = 10_000;
-/** A prepared zone's command leaves this long before its start, naming the start; the board waits and opens on time. */
-const SEND_AHEAD_MS = 5_000;
+/**
+ * A prepared zone's command leaves 3–7 s before its start, naming the wait; the board opens on
+ * its own timer. Each zone run has its own moment in that span, so ten thousand starts in the
+ * same second do not leave in one burst (which would queue them, and delay every arrival).
+ */
+const sendAhead = (zoneRunId: number) => 3_000 + ((zoneRunId * 2_654_435_761) % 4_000);
 
 type Done = { state: ZoneRun['state']; reason?: string };
 
@@ -272,7 +276,7 @@ export class RunExecutor {
         await prepared.cancel('the zone run could not be recorded').catch(() => {});
         prepared = null;
       }
-      woke = await this.sleepUntil(startAt - (prepared ? SEND_AHEAD_MS : 0), site0.id);
+      woke = await this.sleepUntil(startAt - (prepared ? sendAhead(zr.id) : 0), site0.id);
     }
     const giveUp = (why: string) => prepared?.cancel(why).catch((err) => this.d.log.warn({ err }, 'prepared command not cancelled'));
     if (!this.d.isLeader()) return void (await giveUp('this server no longer dispatches'));

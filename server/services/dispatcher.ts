@@ -71,7 +71,51 @@ type ZoneInfo = { zone: typeof zones.$inferSelect; controller: typeof controller
 type CommandRow = Pick<typeof commands.$inferInsert, 'id' | 'controllerId' | 'zoneId' | 'op' | 'relay' | 'maxOnSeconds' | 'origin' | 'requestedBy'> & { state: 'queued' };
 
 type Queued = Omit<Active, 'state' | 'plannedEnd' | 'closeTimer'> & { queuedAt: number };
-type SiteState = { active: Map<number, Active>; queue: Queued[] };
+/**
+ * The zones open or opening at a site, by zone, with their total flow and the count per
+ * controller kept up to date, so admitting a zone does not walk every zone of a large site.
+ */
+class ActiveZones extends Map<number, Active> {
+  flowLpm = 0;
+  private perBoard = new Map<number, number>();
+
+  onBoard(controllerId: number): number {
+    return this.perBoard?.get(controllerId) ?? 0;
+  }
+
+  override set(zoneId: number, a: Active): this {
+    const old = super.get(zoneId);
+    if (old) this.forget(old);
+    super.set(zoneId, a);
+    this.flowLpm += a.flowLpm;
+    this.perBoard.set(a.controllerId, this.onBoard(a.controllerId) + 1);
+    return this;
+  }
+
+  override delete(zoneId: number): boolean {
+    const old = super.get(zoneId);
+    if (!old) return false;
+    this.forget(old);
+    super.delete(zoneId);
+    if (this.size === 0) this.flowLpm = 0; // no drift from adding and taking away
+    return true;
+  }
+
+  /** A zone's flow changed while it was open (a run taken over after a restart). */
+  reflow(a: Active, flowLpm: number) {
+    if (super.get(a.zoneId) === a) this.flowLpm += flowLpm - a.flowLpm;
+    a.flowLpm = flowLpm;
+  }
+
+  private forget(a: Active) {
+    this.flowLpm -= a.flowLpm;
+    const n = this.onBoard(a.controllerId) - 1;
+    if (n > 0) this.perBoard.set(a.controllerId, n);
+    else this.perBoard.delete(a.controllerId);
+  }
+}
+
+type SiteState = { active: ActiveZones; queue: Queued[] };
 type MasterState = { open: boolean; plannedEnd: number };
 
 export type DispatcherDeps = {
@@ -144,7 +188,7 @@ export class ValveDispatcher implements ValveListener {
 
   private site(siteId: number): SiteState {
     let s = this.sites.get(siteId);
-    if (!s) this.sites.set(siteId, (s = { active: new Map(), queue: [] }));
+    if (!s) this.sites.set(siteId, (s = { active: new ActiveZones(), queue: [] }));
     return s;
   }
 
@@ -230,11 +274,11 @@ export class ValveDispatcher implements ValveListener {
 
   /** Why a zone cannot open now, or null when it can. */
   private blocker(s: SiteState, board: BoardLive, item: Queued, usable: number): string | null {
-    const onBoard = [...s.active.values()].filter((a) => a.controllerId === board.controllerId).length;
+    const onBoard = s.active.onBoard(board.controllerId);
+    const inUse = s.active.flowLpm;
     if (onBoard >= board.maxConcurrentValves) {
       return `${board.name} already has ${onBoard} of ${board.maxConcurrentValves} valves open`;
     }
-    const inUse = [...s.active.values()].reduce((t, a) => t + a.flowLpm, 0);
     if (s.active.size > 0 && inUse + item.flowLpm > usable + 1e-9) {
       return `the supply is in use (${round1(inUse)} of ${round1(usable)} L/min; this zone needs ${round1(item.flowLpm)})`;
     }
@@ -452,7 +496,7 @@ export class ValveDispatcher implements ValveListener {
   /** After a zone stops: close the master valve when nothing else runs on the controller, then admit queued zones. */
   private async afterRelease(board: BoardLive) {
     const s = this.site(board.siteId);
-    const stillOnBoard = [...s.active.values()].some((a) => a.controllerId === board.controllerId);
+    const stillOnBoard = s.active.onBoard(board.controllerId) > 0;
     const m = this.masters.get(board.controllerId);
     if (board.masterValveRelay && !stillOnBoard && (m?.open || board.relays[board.masterValveRelay - 1]?.open)) {
       this.masters.delete(board.controllerId);
@@ -555,7 +599,7 @@ export class ValveDispatcher implements ValveListener {
       s.active.set(zoneId, a);
     }
     a.origin = 'program';
-    a.flowLpm = flowLpm;
+    s.active.reflow(a, flowLpm);
     a.plannedEnd = plannedEndMs;
     a.onOutcome = onOutcome;
     if (a.closeTimer) this.d.clock.clearTimeout(a.closeTimer);
