@@ -5,6 +5,7 @@ import path from 'node:path';
 import { createDb, type DbHandle } from '../server/db/client';
 import { runMigrations } from '../server/db/migrate';
 import { loadConfig, type Config } from '../server/config';
+import { projectRoot } from '../server/paths';
 
 export function adminUrl(): string {
   const u = process.env.BENCH_ADMIN_DATABASE_URL ?? process.env.TEST_ADMIN_DATABASE_URL;
@@ -73,4 +74,12 @@ export async function startProfile() {
       session.disconnect();
     },
   };
+}
+
+/**
+ * The arguments that start one of our programs in a process of its own: compiled (.build/node,
+ * which `npm run bench` builds first and then sets RUNNEL_COMPILED=1) or from source under tsx.
+ */
+export function nodeProgram(compiled: 'server' | 'sim-child', source: string): string[] {
+  return process.env.RUNNEL_COMPILED === '1' ? [path.join(projectRoot, '.build/node', `${compiled}.mjs`)] : ['--import', 'tsx', source];
 }

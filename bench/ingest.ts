@@ -6,7 +6,7 @@ import readline from 'node:readline';
 import { sql } from 'drizzle-orm';
 import WebSocket from 'ws';
 import { startRuntime } from '../server/runtime';
-import { benchConfig, benchDb, percentile, round, sleep, startProfile } from './common';
+import { benchConfig, benchDb, nodeProgram, percentile, round, sleep, startProfile } from './common';
 import { BENCH_PASSWORD, buildFleet } from './fleet-world';
 
 export type IngestResult = {
@@ -37,7 +37,7 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   const rt = await startRuntime(benchConfig(db.url, { ACK_TIMEOUT_MS: '5000' }));
   const fleetFile = path.join(os.tmpdir(), `runnel-bench-fleet-${n}.json`);
   fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
-  const child = spawn(process.execPath, ['--import', 'tsx', 'bench/sim-child.ts', fleetFile, rt.mqttUrl!, String(Math.round(1000 / perSecond)), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
+  const child = spawn(process.execPath, [...nodeProgram('sim-child', 'bench/sim-child.ts'), fleetFile, rt.mqttUrl!, String(Math.round(1000 / perSecond)), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
   const lines = readline.createInterface({ input: child.stdout! });
   const msgs: Record<string, unknown>[] = [];
   const waitFor = (key: string) =>

@@ -8,7 +8,7 @@ import { sql } from 'drizzle-orm';
 import WebSocket from 'ws';
 import { SERVER_MQTT_USER } from '../server/broker/mosquitto';
 import { startMosquitto } from '../tests/helpers/mosquitto';
-import { benchDb, percentile, round, sleep } from './common';
+import { benchDb, nodeProgram, percentile, round, sleep } from './common';
 import { BENCH_PASSWORD, buildFleet } from './fleet-world';
 
 export type ScaleResult = { controllers: number; instances: 2; readingsPerSecond: number; lost: number; valveEventP99Ms: number; rssMbPerInstance: number[] };
@@ -52,7 +52,7 @@ export async function benchScaleOne(n: number, windowMs = 20_000): Promise<Scale
   const broker = await startMosquitto(boards);
   const ports = [await freePort(), await freePort()];
   const instances: ChildProcess[] = ports.map((port, i) =>
-    spawn(process.execPath, ['--import', 'tsx', 'server/index.ts'], {
+    spawn(process.execPath, nodeProgram('server', 'server/index.ts'), {
       stdio: ['ignore', 'ignore', 'inherit'],
       env: {
         ...process.env, NODE_ENV: 'test', RUNNEL_DEMO: '0', DATABASE_URL: db.url, PORT: String(port), HOST: '127.0.0.1',
@@ -66,7 +66,7 @@ export async function benchScaleOne(n: number, windowMs = 20_000): Promise<Scale
   const fleetFile = path.join(os.tmpdir(), `runnel-scale-fleet-${n}.json`);
   fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
   const perSecond = 5;
-  const sim = spawn(process.execPath, ['--import', 'tsx', 'bench/sim-child.ts', fleetFile, broker.url, String(1000 / perSecond), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
+  const sim = spawn(process.execPath, [...nodeProgram('sim-child', 'bench/sim-child.ts'), fleetFile, broker.url, String(1000 / perSecond), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
   const lines = readline.createInterface({ input: sim.stdout! });
   const seen: Record<string, unknown>[] = [];
   lines.on('line', (l) => {

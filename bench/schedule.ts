@@ -8,7 +8,7 @@ import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
 import readline from 'node:readline';
-import { benchConfig, benchDb, percentile, round, sleep, startProfile } from './common';
+import { benchConfig, benchDb, nodeProgram, percentile, round, sleep, startProfile } from './common';
 import { buildFleet } from './fleet-world';
 
 export type ScheduleResult = { zones: number; controllers: number; latenessP50Ms: number; latenessP99Ms: number; minStaggerGapMs: number; staggerSettingMs: number; opened: number };
@@ -30,7 +30,7 @@ export async function benchSchedule(opts: { zones?: number; staggerMs?: number }
   // the boards in a process of their own, as in the ingest benchmark, so they do not share the server's core
   const fleetFile = path.join(os.tmpdir(), `runnel-bench-schedule-${boardsN}.json`);
   fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
-  const child = spawn(process.execPath, [...(process.env.BENCH_PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_PROFILE}`] : []), '--import', 'tsx', 'bench/sim-child.ts', fleetFile, rt.mqttUrl!, '300000', '1'], {
+  const child = spawn(process.execPath, [...(process.env.BENCH_PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_PROFILE}`] : []), ...nodeProgram('sim-child', 'bench/sim-child.ts'), fleetFile, rt.mqttUrl!, '300000', '1'], {
     stdio: ['ignore', 'pipe', 'inherit'],
     env: { ...process.env, SIM_REPORT_ENERGIZE: '1' },
   });

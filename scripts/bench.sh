@@ -6,4 +6,7 @@ ensure_postgres_binaries
 pg_up bench "${RUNNEL_BENCH_PG_PORT:-54349}"
 trap pg_down EXIT
 export BENCH_ADMIN_DATABASE_URL="$ADMIN_DATABASE_URL"
-node --max-old-space-size=2048 --import tsx bench/run.ts "$@"
+# compiled, as npm start runs the server (scripts/build-node.mjs); the processes the benchmarks start are too
+node scripts/build-node.mjs
+export RUNNEL_COMPILED=1
+node --max-old-space-size=2048 --enable-source-maps .build/node/bench-run.mjs "$@"

@@ -21,9 +21,11 @@ if [ ! -f dist/index.html ] || [ -n "$(find src index.html vite.config.ts packag
   ./node_modules/.bin/vite build --logLevel warn
 fi
 
+# the server runs compiled (scripts/build-node.mjs, under a second): plain node, no loader thread
+node scripts/build-node.mjs
 log "Runnel on http://${HOST:-127.0.0.1}:${PORT:-3000}  (Ctrl-C stops the server and PostgreSQL)"
 set +e
-node --import tsx server/index.ts &
+node --enable-source-maps .build/node/server.mjs &
 SERVER_PID=$!
 trap 'kill -TERM $SERVER_PID 2>/dev/null' INT TERM
 wait $SERVER_PID

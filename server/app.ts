@@ -7,7 +7,7 @@ import type { Logger } from 'pino';
 import type pg from 'pg';
 import fs from 'node:fs';
 import path from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { projectRoot } from './paths';
 import type { Config } from './config';
 import type { Db } from './db/client';
 import { AppError, errorHandler } from './errors';
@@ -33,7 +33,7 @@ export type AppDeps = {
 
 export type BuiltApp = { app: Express; sessionMiddleware: RequestHandler };
 
-export const defaultClientDir = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../dist');
+export const defaultClientDir = path.join(projectRoot, 'dist');
 
 /** Build the Express app. Tests and benchmarks call this with their own database and config. */
 export function createApp(deps: AppDeps): BuiltApp {

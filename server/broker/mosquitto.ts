@@ -1,7 +1,7 @@
 import { pbkdf2Sync, randomBytes } from 'node:crypto';
 import fs from 'node:fs';
 import path from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { projectRoot } from '../paths';
 
 /**
  * Runnel with an external Mosquitto broker: Mosquitto checks board credentials and topic ACLs
@@ -22,8 +22,7 @@ export function verifyMosquittoHash(secret: string, stored: string): boolean {
 
 export const SERVER_MQTT_USER = 'runnel-server';
 
-const here = path.dirname(fileURLToPath(import.meta.url));
-export const MOSQUITTO_TEMPLATE_DIR = path.resolve(here, '../../deploy/mosquitto');
+export const MOSQUITTO_TEMPLATE_DIR = path.join(projectRoot, 'deploy/mosquitto');
 
 /**
  * Write passwords, ACL and config into `dir`; returns the config file's path. Boards sign in on

@@ -1,9 +1,9 @@
 import { migrate } from 'drizzle-orm/node-postgres/migrator';
 import path from 'node:path';
-import { fileURLToPath } from 'node:url';
+import { projectRoot } from '../paths';
 import type { Db } from './client';
 
-export const migrationsFolder = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '../../drizzle');
+export const migrationsFolder = path.join(projectRoot, 'drizzle');
 
 /** Apply drizzle-kit's migrations with the same driver the app uses. */
 export async function runMigrations(db: Db): Promise<void> {
