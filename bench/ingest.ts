@@ -91,9 +91,17 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   if (profiler) await profiler.stop(path.join(process.env.BENCH_PROFILE!, `ingest-${n}.cpuprofile`));
   child.kill('SIGINT');
   const totals = (await waitFor('done')) as { sent: number; taken: number };
-  await sleep(500);
-  await rt.writer.flush();
-  const stored = await count();
+  // Whatever the broker acknowledged may still be on its way through the server: wait until the
+  // count stops moving (2 s without a change), then count what was never stored.
+  let stored = -1;
+  for (let still = 0; still < 4; ) {
+    await sleep(500);
+    await rt.writer.flush();
+    const now = await count();
+    still = now === stored ? still + 1 : 0;
+    stored = now;
+    if (stored >= totals.sent) break;
+  }
   const duplicates = Number((await db.db.execute(sql`select count(*) - count(distinct (controller_id, board_at, seq)) as n from readings`)).rows[0].n);
   if (duplicates > 0) {
     const rows = (await db.db.execute(sql`select controller_id, board_at, seq, count(*) as n, array_agg(received_at) as received, array_agg(moisture_raw) as raw from readings group by 1, 2, 3 having count(*) > 1 limit 5`)).rows;
