@@ -107,6 +107,7 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
     const rows = (await db.db.execute(sql`select controller_id, board_at, seq, count(*) as n, array_agg(received_at) as received, array_agg(moisture_raw) as raw from readings group by 1, 2, 3 having count(*) > 1 limit 5`)).rows;
     console.error('duplicate readings (first 5):', JSON.stringify(rows));
   }
+  if (totals.sent > stored) console.error(`readings not stored: ${totals.sent - stored}; gateway counts:`, JSON.stringify(rt.services.gateway.stats), 'writer:', JSON.stringify(rt.writer.stats));
   ws.close();
   await rt.close();
   await db.drop();

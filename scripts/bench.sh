@@ -9,4 +9,4 @@ export BENCH_ADMIN_DATABASE_URL="$ADMIN_DATABASE_URL"
 # compiled, as npm start runs the server (scripts/build-node.mjs); the processes the benchmarks start are too
 node scripts/build-node.mjs
 export RUNNEL_COMPILED=1
-node --max-old-space-size=2048 --enable-source-maps .build/node/bench-run.mjs "$@"
+node --max-old-space-size=2048 --expose-gc --enable-source-maps .build/node/bench-run.mjs "$@"
