@@ -32,7 +32,7 @@ const configSchema = z
     /** Share live events with other instances through PostgreSQL LISTEN/NOTIFY (several instances). */
     LIVE_RELAY: bool.default(false),
     MQTT_USERNAME: z.string().optional(),
-    MQTT_INGEST_CONNECTIONS: z.coerce.number().int().min(1).max(64).default(16),
+    MQTT_INGEST_CONNECTIONS: z.coerce.number().int().min(1).max(256).default(192),
     /** This instance's stable MQTT client id with an external broker (its queued messages survive a restart). */
     INSTANCE_ID: z.string().regex(/^[A-Za-z0-9_-]{1,40}$/).optional(),
     MQTT_PASSWORD: z.string().optional(),

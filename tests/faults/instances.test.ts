@@ -25,7 +25,7 @@ let sim: Simulator;
 
 const instanceConfig = () =>
   testConfig(tdb.url, {
-    MQTT_URL: broker.serverUrl, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, LIVE_RELAY: '1',
+    MQTT_URL: broker.serverUrl, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, LIVE_RELAY: '1', MQTT_INGEST_CONNECTIONS: '8',
     SCHEDULER: '1', SCHEDULER_TICK_MS: '500', RECONCILE_DELAY_MS: '1500', READING_FLUSH_MS: '50', FAILSAFE_MARGIN_SECONDS: '3', ACK_TIMEOUT_MS: '1500',
   });
 
