@@ -61,7 +61,7 @@ export function writePerformanceDoc(resultsFile = 'bench/results/latest.json', o
   if (r.pgCopyRowsPerSecond) {
     lines.push('## The ceiling: PostgreSQL COPY', '');
     lines.push(`Raw COPY into the same \`readings\` table from one connection, same run: **${r.pgCopyRowsPerSecond} rows/s**.`);
-    if (r.ingestShareOfCopy !== undefined) lines.push(` The most readings persisted per second in the ingest runs above is ${(r.ingestShareOfCopy * 100).toFixed(1)} % of it (target ≥ 50 % — ${ok(r.ingestShareOfCopy >= 0.5)}). Each row is the load its boards offer (25 readings/s per board), so the 2,000-board row is the nearest to the ceiling; on this machine the boards' simulator, the server and PostgreSQL share the two cores.`);
+    if (r.ingestShareOfCopy !== undefined) lines.push(` The most readings persisted per second in the ingest runs above is ${(r.ingestShareOfCopy * 100).toFixed(1)} % of it (target ≥ 50 % — ${ok(r.ingestShareOfCopy >= 0.5)}). Each row is the load its boards offer (25 readings/s per board) as far as the server keeps up; past that (the 2,000-board row) the boards wait for their acknowledgements, and on this machine the boards' simulator, the server and PostgreSQL share the two cores.`);
     lines.push('');
   }
   if (r.schedule && (r.schedule.latenessP99Ms === null || !Number.isFinite(r.schedule.latenessP99Ms))) {
