@@ -22,10 +22,12 @@ function scalePlot(rows: Scale[]): string {
   const x0 = Math.min(...xs), x1 = Math.max(...xs);
   const X = (v: number) => L + ((Math.log10(v) - x0) / (x1 - x0 || 1)) * (W - L - R);
   const maxR = Math.max(...rows.map((r) => r.readingsPerSecond)) * 1.1 || 1;
-  const maxL = Math.max(...rows.map((r) => r.valveEventP99Ms)) * 1.1 || 1;
+  const maxL = Math.max(...rows.map((r) => r.valveEventP99Ms).filter(Number.isFinite)) * 1.1 || 1;
   const Y1 = (v: number) => H - B - (v / maxR) * (H - T - B);
   const Y2 = (v: number) => H - B - (v / maxL) * (H - T - B);
-  const line = (f: (r: Scale) => number, Y: (v: number) => number) => rows.map((r, i) => `${i ? 'L' : 'M'}${X(r.controllers).toFixed(1)},${Y(f(r)).toFixed(1)}`).join(' ');
+  // (a run with no figure, such as no valve event in the window, is left out of its line)
+  const line = (f: (r: Scale) => number, Y: (v: number) => number) =>
+    rows.filter((r) => Number.isFinite(f(r))).map((r, i) => `${i ? 'L' : 'M'}${X(r.controllers).toFixed(1)},${Y(f(r)).toFixed(1)}`).join(' ');
   const ticks = rows.map((r) => `<text x="${X(r.controllers)}" y="${H - B + 16}" font-size="11" text-anchor="middle">${r.controllers}</text>`).join('');
   return `<svg xmlns="http://www.w3.org/2000/svg" width="${W}" height="${H}" font-family="sans-serif">
 <rect width="100%" height="100%" fill="#fff"/>
@@ -85,7 +87,7 @@ export function writePerformanceDoc(resultsFile = 'bench/results/latest.json', o
     lines.push('## Two instances behind Mosquitto', '');
     lines.push('Boards in one process, Mosquitto, two Runnel instances (separate processes, shared subscription, live events through PostgreSQL NOTIFY), one PostgreSQL — all on the same 2 cores. Valve latency is measured on a WebSocket client of the instance that did not send the command. Each board sends 5 readings a second.', '');
     lines.push('| boards | readings persisted/s | lost | valve event p99 (other instance) | peak RSS per instance |', '|---:|---:|---:|---:|---:|');
-    for (const s of r.scale) lines.push(`| ${s.controllers} | ${s.readingsPerSecond} | ${s.lost} | ${s.valveEventP99Ms} ms | ${s.rssMbPerInstance.join(' / ')} MB |`);
+    for (const s of r.scale) lines.push(`| ${s.controllers} | ${s.readingsPerSecond} | ${s.lost} | ${Number.isFinite(s.valveEventP99Ms) ? `${s.valveEventP99Ms} ms` : 'none arrived in the window'} | ${s.rssMbPerInstance.join(' / ')} MB |`);
     lines.push('', '![ingest and latency against boards](performance-scale.svg)', '');
     fs.writeFileSync(path.join(path.dirname(out), 'performance-scale.svg'), scalePlot(r.scale));
   }
