@@ -334,7 +334,11 @@ export class RunExecutor {
       // starts this zone run twice.
       const req = { zoneId: zr.zoneId, seconds, origin: 'program' as const, onOutcome: on };
       const started = prepared
-        ? prepared.fire(on, startAt).then((r) => this.markRunning(zr.id).then(() => r))
+        ? prepared.fire(on, startAt).then((r) => {
+            // the command is out: a failed write here must not fail the zone (reconcile knows its command)
+            void this.markRunning(zr.id).catch((err) => this.d.log.warn({ err, zoneRunId: zr.id }, 'zone run not marked running'));
+            return r;
+          })
         : this.markRunning(zr.id)
             .then(() => this.d.dispatcher.start(req))
             .then((r) => this.markStarted({ id: zr.id, at: 0, commandId: r.commandId }).then(() => r));
@@ -439,6 +443,16 @@ export class RunExecutor {
         if (cmd?.state === 'queued' && !open && !(await this.carriedOut(zr.zoneId, cmd.id, zr.plannedStart))) {
           // Never recorded as sent and never seen at the board: it did not leave. Plan it again.
           await this.d.db.update(commands).set({ state: 'cancelled', error: 'the server stopped before this command was sent' }).where(eq(commands.id, cmd.id));
+          await this.d.db.update(zoneRuns).set({ state: 'planned', commandId: null }).where(eq(zoneRuns.id, zr.id));
+          zr.state = 'planned';
+          zr.commandId = null;
+          continue;
+        }
+        if (cmd?.state === 'sent' && !open && !zr.actualStart && zr.plannedStart.getTime() > this.d.clock.now() + 250) {
+          // Sent ahead and still waiting at the board: cancel it there (a close cancels a waiting
+          // open) and plan the zone again, under a command this server follows.
+          await this.d.dispatcher.close(zr.zoneId, site.id, 'stopped');
+          await this.d.db.update(commands).set({ state: 'cancelled', error: 'the server restarted before its start; sent again' }).where(eq(commands.id, cmd.id));
           await this.d.db.update(zoneRuns).set({ state: 'planned', commandId: null }).where(eq(zoneRuns.id, zr.id));
           zr.state = 'planned';
           zr.commandId = null;

@@ -300,6 +300,34 @@ describe('restarts and several instances', { timeout: 90_000 }, () => {
     await w.tdb.db.update(programs).set({ enabled: false });
   });
 
+  it('cancels at the board a command sent ahead when the server restarts before its start, and runs the zone once', async () => {
+    const a3 = await zoneId(w.tdb, 'A3 hedge');
+    const p = await addProgram(w.tdb, w.f.siteA, 'Sent ahead', ['07:50'], [[a3, 3]]);
+    const board = w.sim.board('TEST-A-0001');
+    const opensBefore = board.energizeLog.filter((e) => e.relay === 3).length;
+    const start = local('2026-06-03T07:50');
+    await w.runUntil(start - 20_000, 60_000);
+    await w.runUntil(start - 7_500, 1000);
+    // step until the command has left (3–7 s before the start); the board holds it
+    const sentCommand = async () => {
+      const [z] = await zoneRunsOf(w.tdb, (await runsOf(w.tdb, p))[0].id);
+      const c = z.commandId ? (await w.tdb.db.execute(sql`select state from commands where id = ${z.commandId}`)).rows[0] : undefined;
+      return c?.state === 'sent' ? z.commandId : null;
+    };
+    let first: string | null = null;
+    while (!(first = await sentCommand()) && w.clock.now() < start - 2500) await w.runFor(250, 250);
+    expect(first).not.toBeNull();
+    await w.restartServer();
+    for (let i = 0; i < 100 && !w.rt.services.fleet.all().find((b) => b.serial === 'TEST-A-0001')?.online; i++) await new Promise((r) => setTimeout(r, 100));
+    await w.runUntil(start + 10 * 60_000, 5000);
+    const [zr] = await zoneRunsOf(w.tdb, (await runsOf(w.tdb, p))[0].id);
+    expect([zr.state, zr.reason]).toEqual(['completed', null]);
+    const old = await w.tdb.db.execute(sql`select state, error from commands where id = ${first}`);
+    expect(old.rows[0]).toEqual({ state: 'cancelled', error: 'the server restarted before its start; sent again' });
+    expect(board.energizeLog.filter((e) => e.relay === 3).length - opensBefore).toBe(1);
+    await w.tdb.db.update(programs).set({ enabled: false });
+  });
+
   it('lets two instances on one database dispatch each slot once, and the second takes over when the first stops', async () => {
     const { startRuntime } = await import('../../server/runtime');
     const { testConfig } = await import('../helpers/config');
