@@ -47,13 +47,13 @@ export class RunExecutor {
   /** Per site: zones whose command waits at the board for its start, told of every hold event. */
   private holdWatchers = new Map<number, Set<() => void>>();
 
-  /** Until `t`: true at the first hold event at the site, false when the time comes. */
-  private holdEventBefore(t: number, siteId: number): Promise<boolean> {
+  /** Until `t`: true when one of the site's `waiters` is woken first, false when the time comes. */
+  private wakeableWait(t: number, siteId: number, waiters: Map<number, Set<() => void>>): Promise<boolean> {
     const ms = t - this.d.clock.now();
     if (ms <= 0) return Promise.resolve(false);
     return new Promise((resolve) => {
-      const set = this.holdWatchers.get(siteId) ?? new Set();
-      this.holdWatchers.set(siteId, set);
+      const set = waiters.get(siteId) ?? new Set();
+      waiters.set(siteId, set);
       const wake = () => {
         set.delete(wake);
         this.d.clock.clearTimeout(h);
@@ -65,6 +65,11 @@ export class RunExecutor {
       }, ms);
       set.add(wake);
     });
+  }
+
+  /** Until `t`: true at the first hold event at the site, false when the time comes. */
+  private holdEventBefore(t: number, siteId: number): Promise<boolean> {
+    return this.wakeableWait(t, siteId, this.holdWatchers);
   }
 
   constructor(private d: ExecDeps) {
@@ -88,23 +93,8 @@ export class RunExecutor {
       where z.id = v.id`),
   );
 
-  private sleepUntil(t: number, siteId: number): Promise<'time' | 'rain'> {
-    const ms = t - this.d.clock.now();
-    if (ms <= 0) return Promise.resolve('time');
-    return new Promise((resolve) => {
-      const set = this.rainWaiters.get(siteId) ?? new Set();
-      this.rainWaiters.set(siteId, set);
-      const wake = () => {
-        set.delete(wake);
-        this.d.clock.clearTimeout(h);
-        resolve('rain');
-      };
-      const h = this.d.clock.setTimeout(() => {
-        set.delete(wake);
-        resolve('time');
-      }, ms);
-      set.add(wake);
-    });
+  private async sleepUntil(t: number, siteId: number): Promise<'time' | 'rain'> {
+    return (await this.wakeableWait(t, siteId, this.rainWaiters)) ? 'rain' : 'time';
   }
 
   /** Rain at a site: wake every waiting zone so it records the hold now. */

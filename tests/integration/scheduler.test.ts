@@ -23,6 +23,11 @@ async function addZones(tdb: TestDb, f: Fixture) {
   ]);
 }
 
+/** After a restart the board reconnects in real time; the virtual clock waits for it. */
+async function boardBackOnline(w: ScheduledWorld, serial: string) {
+  for (let i = 0; i < 100 && !w.rt.services.fleet.all().find((b) => b.serial === serial)?.online; i++) await new Promise((r) => setTimeout(r, 100));
+}
+
 async function zoneId(tdb: TestDb, name: string) {
   const [z] = await tdb.db.select({ id: zones.id }).from(zones).where(eq(zones.name, name));
   return z.id;
@@ -288,8 +293,7 @@ describe('restarts and several instances', { timeout: 90_000 }, () => {
     expect(zr0.state).toBe('planned');
     expect(zr0.commandId).not.toBeNull();
     await w.restartServer();
-    // (the board reconnects in real time; the virtual clock waits for it)
-    for (let i = 0; i < 100 && !w.rt.services.fleet.all().find((b) => b.serial === 'TEST-A-0001')?.online; i++) await new Promise((r) => setTimeout(r, 100));
+    await boardBackOnline(w, 'TEST-A-0001');
     await w.runUntil(local('2026-06-03T07:40'), 5000);
     const [zr] = await zoneRunsOf(w.tdb, (await runsOf(w.tdb, p))[0].id);
     expect([zr.state, zr.reason]).toEqual(['completed', null]);
@@ -318,7 +322,7 @@ describe('restarts and several instances', { timeout: 90_000 }, () => {
     while (!(first = await sentCommand()) && w.clock.now() < start - 2500) await w.runFor(250, 250);
     expect(first).not.toBeNull();
     await w.restartServer();
-    for (let i = 0; i < 100 && !w.rt.services.fleet.all().find((b) => b.serial === 'TEST-A-0001')?.online; i++) await new Promise((r) => setTimeout(r, 100));
+    await boardBackOnline(w, 'TEST-A-0001');
     await w.runUntil(start + 10 * 60_000, 5000);
     const [zr] = await zoneRunsOf(w.tdb, (await runsOf(w.tdb, p))[0].id);
     expect([zr.state, zr.reason]).toEqual(['completed', null]);
