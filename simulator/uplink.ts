@@ -210,7 +210,9 @@ export class Uplink {
     if (this.everConnected) this.counters.reconnects++;
     this.everConnected = true;
     this.status();
-    for (const m of this.outbox.drain()) this.send(m);
+    // Straight out, not behind the hand-over queue: whatever still waits there was made after
+    // everything in the buffer, and a board's sequence numbers must reach the server in order.
+    for (const m of this.outbox.drain()) this.publish(m);
     this.state();
   }
 }
