@@ -1,6 +1,7 @@
 import pg from 'pg';
 import { randomBytes } from 'node:crypto';
 import fs from 'node:fs';
+import net from 'node:net';
 import path from 'node:path';
 import { createDb, type DbHandle } from '../server/db/client';
 import { runMigrations } from '../server/db/migrate';
@@ -37,13 +38,22 @@ export async function benchDb(label: string): Promise<BenchDb> {
   };
 }
 
-/** The server's settings in a benchmark; the writer's READING_* settings may be tried from the environment. */
-export function benchConfig(url: string, extra: Record<string, string> = {}): Config {
-  const tried = Object.fromEntries(Object.entries(process.env).filter(([k]) => k.startsWith('READING_')));
-  return loadConfig({
-    NODE_ENV: 'test', DATABASE_URL: url, PORT: '0', MQTT_PORT: '0', SIM_PORT: '0', WEATHER_PORT: '0', LOG_LEVEL: 'error',
+/**
+ * The settings of a benchmark's server, as environment variables: test mode, no demo, quiet logs,
+ * no scheduler or offline timeout unless asked. The writer's READING_* and the gateway's MQTT_*
+ * settings may be tried from the environment of `npm run bench`.
+ */
+export function benchEnv(url: string, extra: Record<string, string> = {}): Record<string, string> {
+  const tried = Object.fromEntries(Object.entries(process.env).filter(([k]) => k.startsWith('READING_') || k.startsWith('MQTT_INGEST')) as [string, string][]);
+  return {
+    NODE_ENV: 'test', RUNNEL_DEMO: '0', HOST: '127.0.0.1', DATABASE_URL: url, PORT: '0', MQTT_PORT: '0', SIM_PORT: '0', WEATHER_PORT: '0', LOG_LEVEL: 'error',
     LOGIN_RATE_LIMIT: '10000', SCHEDULER: '0', OFFLINE_AFTER_SECONDS: '3600', ...tried, ...extra,
-  });
+  };
+}
+
+/** The same settings for a server started in this process. */
+export function benchConfig(url: string, extra: Record<string, string> = {}): Config {
+  return loadConfig(benchEnv(url, extra));
 }
 
 export function percentile(xs: number[], p: number): number {
@@ -82,4 +92,40 @@ export async function startProfile() {
  */
 export function nodeProgram(compiled: 'server' | 'sim-child', source: string): string[] {
   return process.env.RUNNEL_COMPILED === '1' ? [path.join(projectRoot, '.build/node', `${compiled}.mjs`)] : ['--import', 'tsx', source];
+}
+
+export async function freePort(): Promise<number> {
+  return new Promise((resolve) => {
+    const s = net.createServer();
+    s.listen(0, '127.0.0.1', () => {
+      const p = (s.address() as net.AddressInfo).port;
+      s.close(() => resolve(p));
+    });
+  });
+}
+
+/** A process's peak resident memory so far (VmHWM), MB. */
+export const rssMb = (pid: number) => {
+  const m = /VmHWM:\s+(\d+) kB/.exec(fs.readFileSync(`/proc/${pid}/status`, 'utf8'));
+  return m ? Math.round(Number(m[1]) / 1024) : NaN;
+};
+
+export async function waitHealthy(url: string, ms = 60_000) {
+  const end = Date.now() + ms;
+  while (Date.now() < end) {
+    try {
+      if ((await fetch(`${url}/api/health`)).ok) return;
+    } catch {
+      /* starting */
+    }
+    await sleep(200);
+  }
+  throw new Error(`${url} did not come up`);
+}
+
+/** A session cookie for `email` on the server at `url`. */
+export async function signIn(url: string, email: string, password: string): Promise<string> {
+  const r = await fetch(`${url}/api/auth/sign-in`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email, password }) });
+  if (!r.ok) throw new Error(`sign-in at ${url} failed: ${r.status}`);
+  return r.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
 }

@@ -5,8 +5,7 @@ import path from 'node:path';
 import readline from 'node:readline';
 import { sql } from 'drizzle-orm';
 import WebSocket from 'ws';
-import { startRuntime } from '../server/runtime';
-import { benchConfig, benchDb, nodeProgram, percentile, round, sleep, startProfile } from './common';
+import { benchDb, benchEnv, freePort, nodeProgram, percentile, rssMb, round, signIn, sleep, waitHealthy } from './common';
 import { BENCH_PASSWORD, buildFleet } from './fleet-world';
 
 export type IngestResult = {
@@ -25,19 +24,31 @@ export type IngestResult = {
 
 /**
  * N boards in a simulator process of their own, each sending `samplesPerSecond` readings in one
- * message a second, against the whole server in this process. Readings persisted per second over
- * a measuring window; lost = samples the boards had acknowledged minus rows stored; valve event
- * latency = board publish time to a WebSocket client's receipt, while valves are being switched.
+ * message a second, against the whole server in a process of its own (compiled, as `npm start`
+ * runs it, with its embedded broker). Readings persisted per second over a measuring window; lost
+ * = samples the boards had acknowledged minus rows stored; valve event latency = board publish
+ * time to the receipt of a WebSocket client in this process, while zones are started through the
+ * API; server RSS = the server process's peak resident memory.
  */
 export async function benchIngest(n: number, opts: { windowMs?: number; samplesPerSecond?: number } = {}): Promise<IngestResult> {
   const windowMs = opts.windowMs ?? 20_000;
   const perSecond = opts.samplesPerSecond ?? 25;
   const db = await benchDb(`ingest${n}`);
   const { boards, zoneIds } = await buildFleet(db, n);
-  const rt = await startRuntime(benchConfig(db.url, { ACK_TIMEOUT_MS: '5000' }));
+  const [port, mqttPort] = [await freePort(), await freePort()];
+  const url = `http://127.0.0.1:${port}`;
+  const profile = process.env.BENCH_PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_PROFILE}`, '--cpu-prof-name=ingest-' + n + '-server.cpuprofile'] : [];
+  const server = spawn(process.execPath, [...profile, ...nodeProgram('server', 'server/index.ts')], {
+    stdio: ['ignore', 'ignore', 'inherit'],
+    env: {
+      ...process.env, ...benchEnv(db.url), PORT: String(port), MQTT_PORT: String(mqttPort), ACK_TIMEOUT_MS: '5000',
+    },
+  });
+  const exited = new Promise((r) => server.once('exit', r));
+  await waitHealthy(url);
   const fleetFile = path.join(os.tmpdir(), `runnel-bench-fleet-${n}.json`);
   fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
-  const child = spawn(process.execPath, [...nodeProgram('sim-child', 'bench/sim-child.ts'), fleetFile, rt.mqttUrl!, String(Math.round(1000 / perSecond)), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
+  const child = spawn(process.execPath, [...nodeProgram('sim-child', 'bench/sim-child.ts'), fleetFile, `mqtt://127.0.0.1:${mqttPort}`, String(Math.round(1000 / perSecond)), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
   const lines = readline.createInterface({ input: child.stdout! });
   const msgs: Record<string, unknown>[] = [];
   const waitFor = (key: string) =>
@@ -59,9 +70,8 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
     });
   await waitFor('ready');
   // a browser's view: sign in and listen on /ws
-  const res = await fetch(`${rt.url}/api/auth/sign-in`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email: 'bench@runnel.test', password: BENCH_PASSWORD }) });
-  const cookie = res.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
-  const ws = new WebSocket(`${rt.url.replace('http', 'ws')}/ws`, { headers: { cookie, origin: rt.url } });
+  const cookie = await signIn(url, 'bench@runnel.test', BENCH_PASSWORD);
+  const ws = new WebSocket(`${url.replace('http', 'ws')}/ws`, { headers: { cookie, origin: url } });
   const latencies: number[] = [];
   let measuring = false;
   ws.on('message', (d) => {
@@ -72,23 +82,23 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   await new Promise((r) => ws.once('open', r));
   await sleep(5000); // warm up: every board connected and sending
   const count = async () => Number((await db.db.execute(sql`select count(*) as n from readings`)).rows[0].n);
-  const profiler = process.env.BENCH_PROFILE ? await startProfile() : null;
   measuring = true;
-  let peakRss = process.memoryUsage().rss;
   const c0 = await count();
   const t0 = Date.now();
-  // switch valves while measuring: a random zone for 2 s, ten times a second
+  // start a random zone for a minute through the API, ten times a second, while measuring
+  const started = new Set<number>();
   const valveTimer = setInterval(() => {
     const z = zoneIds[Math.floor(Math.random() * zoneIds.length)];
-    void rt.services.dispatcher.start({ zoneId: z, seconds: 2, origin: 'manual' }).catch(() => {});
-    peakRss = Math.max(peakRss, process.memoryUsage().rss);
+    if (started.has(z)) return;
+    started.add(z);
+    void fetch(`${url}/api/zones/${z}/start`, { method: 'POST', headers: { 'content-type': 'application/json', cookie, origin: url }, body: JSON.stringify({ minutes: 1 }) }).catch(() => {});
   }, 100);
   await sleep(windowMs);
   clearInterval(valveTimer);
   const c1 = await count();
   const t1 = Date.now();
   measuring = false;
-  if (profiler) await profiler.stop(path.join(process.env.BENCH_PROFILE!, `ingest-${n}.cpuprofile`));
+  const serverRssMb = rssMb(server.pid!);
   child.kill('SIGINT');
   const totals = (await waitFor('done')) as { sent: number; taken: number };
   // Whatever the broker acknowledged may still be on its way through the server: wait until the
@@ -96,7 +106,6 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   let stored = -1;
   for (let still = 0; still < 4; ) {
     await sleep(500);
-    await rt.writer.flush();
     const now = await count();
     still = now === stored ? still + 1 : 0;
     stored = now;
@@ -107,9 +116,10 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
     const rows = (await db.db.execute(sql`select controller_id, board_at, seq, count(*) as n, array_agg(received_at) as received, array_agg(moisture_raw) as raw from readings group by 1, 2, 3 having count(*) > 1 limit 5`)).rows;
     console.error('duplicate readings (first 5):', JSON.stringify(rows));
   }
-  if (totals.sent > stored) console.error(`readings not stored: ${totals.sent - stored}; gateway counts:`, JSON.stringify(rt.services.gateway.stats), 'writer:', JSON.stringify(rt.writer.stats));
+  if (totals.sent > stored) console.error(`readings not stored: ${totals.sent - stored} of ${totals.sent}`);
   ws.close();
-  await rt.close();
+  server.kill('SIGTERM');
+  await exited;
   await db.drop();
   fs.rmSync(fleetFile, { force: true });
   return {
@@ -118,7 +128,7 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
     lost: Math.max(0, totals.sent - stored),
     valveEventP50Ms: round(percentile(latencies, 50)),
     valveEventP99Ms: round(percentile(latencies, 99)),
-    serverRssMb: Math.round(peakRss / 1024 / 1024),
+    serverRssMb,
     sent: totals.sent,
     stored,
     duplicates,

@@ -1,6 +1,5 @@
 import { spawn, type ChildProcess } from 'node:child_process';
 import fs from 'node:fs';
-import net from 'node:net';
 import os from 'node:os';
 import path from 'node:path';
 import readline from 'node:readline';
@@ -8,38 +7,10 @@ import { sql } from 'drizzle-orm';
 import WebSocket from 'ws';
 import { SERVER_MQTT_USER } from '../server/broker/mosquitto';
 import { startMosquitto } from '../tests/helpers/mosquitto';
-import { benchDb, nodeProgram, percentile, round, sleep } from './common';
+import { benchDb, benchEnv, freePort, nodeProgram, percentile, rssMb, round, signIn, sleep, waitHealthy } from './common';
 import { BENCH_PASSWORD, buildFleet } from './fleet-world';
 
 export type ScaleResult = { controllers: number; instances: 2; readingsPerSecond: number; lost: number; valveEventP99Ms: number; rssMbPerInstance: number[] };
-
-async function freePort(): Promise<number> {
-  return new Promise((resolve) => {
-    const s = net.createServer();
-    s.listen(0, '127.0.0.1', () => {
-      const p = (s.address() as net.AddressInfo).port;
-      s.close(() => resolve(p));
-    });
-  });
-}
-
-const rssMb = (pid: number) => {
-  const m = /VmHWM:\s+(\d+) kB/.exec(fs.readFileSync(`/proc/${pid}/status`, 'utf8'));
-  return m ? Math.round(Number(m[1]) / 1024) : NaN;
-};
-
-async function waitHealthy(url: string, ms = 60_000) {
-  const end = Date.now() + ms;
-  while (Date.now() < end) {
-    try {
-      if ((await fetch(`${url}/api/health`)).ok) return;
-    } catch {
-      /* starting */
-    }
-    await sleep(200);
-  }
-  throw new Error(`${url} did not come up`);
-}
 
 /**
  * N boards (own process) → Mosquitto → two Runnel instances (own processes) → one PostgreSQL.
@@ -55,9 +26,8 @@ export async function benchScaleOne(n: number, windowMs = 20_000): Promise<Scale
     spawn(process.execPath, nodeProgram('server', 'server/index.ts'), {
       stdio: ['ignore', 'ignore', 'inherit'],
       env: {
-        ...process.env, NODE_ENV: 'test', RUNNEL_DEMO: '0', DATABASE_URL: db.url, PORT: String(port), HOST: '127.0.0.1',
-        MQTT_URL: broker.serverUrl, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, INSTANCE_ID: `bench-${i}`,
-        LIVE_RELAY: '1', SCHEDULER: '0', LOG_LEVEL: 'error', WEATHER_PORT: '0', LOGIN_RATE_LIMIT: '10000', OFFLINE_AFTER_SECONDS: '3600',
+        ...process.env, ...benchEnv(db.url), PORT: String(port),
+        MQTT_URL: broker.serverUrl, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, INSTANCE_ID: `bench-${i}`, LIVE_RELAY: '1',
       },
     }),
   );
@@ -86,11 +56,7 @@ export async function benchScaleOne(n: number, windowMs = 20_000): Promise<Scale
     throw new Error(`simulator did not report ${key}`);
   };
   await waitFor('ready');
-  const signIn = async (u: string) => {
-    const r = await fetch(`${u}/api/auth/sign-in`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ email: 'bench@runnel.test', password: BENCH_PASSWORD }) });
-    return r.headers.getSetCookie().map((c) => c.split(';')[0]).join('; ');
-  };
-  const [cookieA, cookieB] = [await signIn(urls[0]), await signIn(urls[1])];
+  const [cookieA, cookieB] = [await signIn(urls[0], 'bench@runnel.test', BENCH_PASSWORD), await signIn(urls[1], 'bench@runnel.test', BENCH_PASSWORD)];
   const ws = new WebSocket(`${urls[1].replace('http', 'ws')}/ws`, { headers: { cookie: cookieB, origin: urls[1] } });
   const lat: number[] = [];
   let measuring = false;

@@ -9,7 +9,8 @@ export type TestRuntime = { rt: Runtime; tdb: TestDb; seed: SeedResult; close: (
 export async function startDemoRuntime(extra: Record<string, string> = {}): Promise<TestRuntime> {
   const tdb = await createTestDb();
   const seed = (await seedDemo(tdb.db))!;
-  const rt = await startRuntime(testConfig(tdb.url, { RUNNEL_DEMO: '1', ...extra }));
+  // RUNNEL_TEST_CLIENT_DIR: a client built elsewhere than dist/ (two people building at once)
+  const rt = await startRuntime(testConfig(tdb.url, { RUNNEL_DEMO: '1', ...extra }), { clientDir: process.env.RUNNEL_TEST_CLIENT_DIR || undefined });
   return {
     rt, tdb, seed,
     close: async () => {
