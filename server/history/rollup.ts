@@ -59,10 +59,14 @@ export async function rebuildRollups(db: Db, opts: { from: string; to: string; s
 }
 
 const FINAL = new Set(['completed', 'stopped', 'held_rain', 'skipped_restriction', 'skipped_not_needed', 'failed']);
+/** States a whole run ends in ('run' events); a run held or skipped at planning writes its zone runs final at once. */
+const RUN_ENDED = new Set(['completed', 'partial', 'held_rain', 'skipped_restriction', 'failed', 'cancelled']);
 
 /**
  * Keeps water_use_daily current: each time a zone run ends (the executor's 'zone_run' event),
- * its zone's day is recomputed from the zone runs. Work is done one at a time, in order.
+ * its zone's day is recomputed from the zone runs; when a whole run ends (its 'run' event), every
+ * zone day it touched is, which covers zone runs written already held or skipped when the run was
+ * planned (no 'zone_run' event for those). Work is done one at a time, in order.
  */
 export class RollupKeeper {
   private chain: Promise<void> = Promise.resolve();
@@ -73,6 +77,11 @@ export class RollupKeeper {
 
   start(): void {
     this.unsubscribe = this.d.bus.subscribe((e) => {
+      if (e.type === 'run' && typeof e.runId === 'number' && typeof e.state === 'string' && RUN_ENDED.has(e.state)) {
+        const runId = e.runId;
+        this.enqueue(() => this.runEnded(runId));
+        return;
+      }
       if (e.type !== 'zone_run' || typeof e.zoneRunId !== 'number') return;
       if (typeof e.state === 'string' && !FINAL.has(e.state)) return;
       this.enqueue(() => this.zoneRunEnded(e.zoneRunId as number));
@@ -98,6 +107,13 @@ export class RollupKeeper {
       from zone_runs zr join sites s on s.id = zr.site_id where zr.id = ${zoneRunId}`);
     const row = r.rows[0];
     if (row) await recomputeZoneDay(this.d.db, row.zone_id, row.date, row.timezone);
+  }
+
+  private async runEnded(runId: number) {
+    const r = await this.d.db.execute<{ zone_id: number; date: string; timezone: string }>(sql`
+      select distinct zr.zone_id, to_char((zr.planned_start at time zone s.timezone)::date, 'YYYY-MM-DD') as date, s.timezone
+      from zone_runs zr join sites s on s.id = zr.site_id where zr.run_id = ${runId}`);
+    for (const row of r.rows) await recomputeZoneDay(this.d.db, row.zone_id, row.date, row.timezone);
   }
 
   /** Resolves when every rollup asked for so far is written (tests, shutdown). */

@@ -282,6 +282,29 @@ describe('the daily rollup', () => {
     await keeper.stop();
   });
 
+  it('counts zone runs written already held when their run was planned, once the run ends (the run event)', async () => {
+    const bus = new LiveBus();
+    const keeper = new RollupKeeper({ db: tdb.db, bus, clock: realClock, log: pino({ level: 'silent' }) });
+    keeper.start();
+    await keeper.idle();
+    const day = `select litres, not_as_planned from water_use_daily where zone_id = ${f.zoneA} and date = '2025-07-09'`;
+    const zr = await addRun({ zoneId: f.zoneA, controllerId: f.controllerA, siteId: f.siteA, flowLpm: 30, start: '2025-07-09T12:00:00Z', minutes: 5, actual: null, state: 'held_rain', reason: 'Raining at the site' });
+    // the zone run alone tells nobody: no row for the day yet
+    expect((await tdb.db.execute(sql.raw(day))).rows).toEqual([]);
+    bus.publish({ type: 'run', siteId: f.siteA, runId: zr.runId, state: 'held_rain', reason: 'Raining at the site' });
+    await keeper.idle();
+    expect((await tdb.db.execute(sql.raw(day))).rows).toEqual([{ litres: 0, not_as_planned: 1 }]);
+    // a run still going changes nothing yet
+    const zr2 = await addRun({ zoneId: f.zoneA, controllerId: f.controllerA, siteId: f.siteA, flowLpm: 30, start: '2025-07-09T14:00:00Z', minutes: 5, actual: null, state: 'skipped_restriction', reason: 'No watering on Wednesdays' });
+    bus.publish({ type: 'run', siteId: f.siteA, runId: zr2.runId, state: 'running', reason: null });
+    await keeper.idle();
+    expect((await tdb.db.execute(sql.raw(day))).rows).toEqual([{ litres: 0, not_as_planned: 1 }]);
+    bus.publish({ type: 'run', siteId: f.siteA, runId: zr2.runId, state: 'skipped_restriction', reason: 'No watering on Wednesdays' });
+    await keeper.idle();
+    expect((await tdb.db.execute(sql.raw(day))).rows).toEqual([{ litres: 0, not_as_planned: 2 }]);
+    await keeper.stop();
+  });
+
   it('keeps the hourly readings rollup current from the reading events, including a replayed hour', async () => {
     const bus = new LiveBus();
     const rr = new ReadingsRollup({ db: tdb.db, bus, clock: realClock, log: pino({ level: 'silent' }), flushMs: 3_600_000 });
