@@ -121,9 +121,10 @@ CONF
   export PGDATA_DIR ADMIN_DATABASE_URL
 }
 
+# pg_down [--quiet] — stop the cluster when this script started it; --quiet prints nothing.
 pg_down() {
   if [ -n "${PGDATA_DIR:-}" ] && [ "${PG_STARTED_BY_US:-0}" = 1 ]; then
-    log "stopping PostgreSQL"
+    [ "${1:-}" = --quiet ] || log "stopping PostgreSQL"
     as_postgres "$(pg_bindir)/pg_ctl" -D "$PGDATA_DIR" -m fast -w stop >/dev/null 2>&1 || true
   fi
 }

@@ -8,7 +8,8 @@ ensure_mosquitto
 if [ -z "${TEST_ADMIN_DATABASE_URL:-}" ]; then
   ensure_postgres_binaries
   pg_up test "${RUNNEL_TEST_PG_PORT:-54339}"
-  trap pg_down EXIT
+  # quiet, so vitest's summary stays the last thing printed
+  trap 'pg_down --quiet' EXIT
   export TEST_ADMIN_DATABASE_URL="$ADMIN_DATABASE_URL"
 fi
 export NODE_ENV=test
