@@ -65,7 +65,7 @@ export async function startWatch(d: WatchDeps): Promise<WatchParts> {
     smtpUrl = fakeSmtp.url;
     log.info({ smtp: fakeSmtp.url }, 'fake SMTP server keeps outgoing mail in memory');
   }
-  const mailer = smtpUrl ? createSmtpMailer({ url: smtpUrl, from: config.MAIL_FROM, local: !!fakeSmtp, log }) : createNullMailer(log);
+  const mailer = smtpUrl ? createSmtpMailer({ url: smtpUrl, from: config.MAIL_FROM, local: !!fakeSmtp, log }) : createNullMailer();
   const mail = new MailService(
     {
       db, mailer, log,
@@ -79,12 +79,14 @@ export async function startWatch(d: WatchDeps): Promise<WatchParts> {
   );
 
   const store = new AlertStore({ db, bus, clock });
-  store.onRaised((a) => void mail.alertRaised(a).catch((err) => log.warn({ err }, 'alert mail failed')));
+  // Without a mail server (production with no SMTP_URL) nothing is queued or logged as sent.
+  if (smtpUrl) store.onRaised((a) => void mail.alertRaised(a).catch((err) => log.warn({ err }, 'alert mail failed')));
+  else log.warn('SMTP_URL is not set: Runnel sends no alert mail, digests or weekly summaries');
   const engine = config.ALERTS
     ? new AlertEngine({ db, bus, fleet: d.fleet, dispatcher: d.dispatcher, clock, log, store, settings: alertSettings(config) })
     : null;
   await engine?.start();
-  mail.start();
+  if (smtpUrl) mail.start();
 
   const parts: WatchParts = {
     rollups, readingsRollup, store, engine, mail, fakeSmtp,

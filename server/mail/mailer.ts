@@ -28,12 +28,11 @@ export function createSmtpMailer(opts: { url: string; from: string; local?: bool
   };
 }
 
-/** No mail server configured (production without SMTP_URL): log what would have gone out. */
-export function createNullMailer(log: Logger): Mailer {
+/** No mail server configured (production without SMTP_URL): nothing is sent, and nothing is logged as sent. */
+export function createNullMailer(): Mailer {
   return {
-    async send(m) {
-      log.warn({ to: m.to, subject: m.subject }, 'SMTP_URL is not set; mail not sent');
-      return { messageId: null };
+    async send() {
+      throw new Error('SMTP_URL is not set; mail is not sent');
     },
     close: () => {},
   };

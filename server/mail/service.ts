@@ -1,10 +1,14 @@
 import { DateTime } from 'luxon';
+import { sql } from 'drizzle-orm';
 import type { Clock } from '../clock';
 import type { Config } from '../config';
 import type { AlertView } from '../contracts/alerts';
 import { flushAlertMail, queueAlertMail, sendDailyDigests } from './alert-mail';
 import type { MailCtx } from './context';
 import { sendWeeklySummaries } from './weekly';
+
+/** The advisory lock every instance takes to send mail ("MAIL" in ASCII): one sender at a time, cluster-wide. */
+export const MAIL_LOCK_KEY = 0x4d41494c;
 
 export type MailSchedule = { tickMs: number; digestHour: number; weeklyDay: number; weeklyHour: number };
 
@@ -18,6 +22,10 @@ export const mailSchedule = (c: Config): MailSchedule => ({
 /**
  * Alert mail, daily digests and weekly summaries on a timer. Every job takes `now`, so tests
  * call them with the time they want; the timer passes the clock's time.
+ *
+ * Every instance runs one, over the shared mail queue and log. Each job that sends holds a
+ * PostgreSQL advisory lock from reading what is due until it has logged what it sent, so two
+ * instances never send the same alert, digest or summary: the second waits, then finds it done.
  */
 export class MailService {
   private timer: NodeJS.Timeout | null = null;
@@ -49,9 +57,17 @@ export class MailService {
   }
 
   private serial<T>(fn: () => Promise<T>): Promise<T> {
-    const next = this.work.then(fn);
+    const next = this.work.then(() => this.locked(fn));
     this.work = next.catch((err) => this.ctx.log.warn({ err }, 'mail job failed'));
     return next;
+  }
+
+  /** Runs `fn` while this instance holds the mail lock (a transaction's advisory lock, released at its end). */
+  private locked<T>(fn: () => Promise<T>): Promise<T> {
+    return this.ctx.db.transaction(async (tx) => {
+      await tx.execute(sql`select pg_advisory_xact_lock(${MAIL_LOCK_KEY})`);
+      return fn();
+    });
   }
 
   /** Resolves when the jobs asked for so far are done. */

@@ -33,7 +33,7 @@ function accountMailOf(deps: AppDeps): () => AccountMail {
     const log = deps.log.child({ part: 'account-mail' });
     if (ctx) return { send: (m) => ctx.mailer.send(m), baseUrl: ctx.baseUrl, firmName: ctx.firmName, log };
     const c = deps.config;
-    own ??= c.SMTP_URL ? createSmtpMailer({ url: c.SMTP_URL, from: c.MAIL_FROM, local: c.NODE_ENV !== 'production', log }) : createNullMailer(log);
+    own ??= c.SMTP_URL ? createSmtpMailer({ url: c.SMTP_URL, from: c.MAIL_FROM, local: c.NODE_ENV !== 'production', log }) : createNullMailer();
     const baseUrl = (c.PUBLIC_URL ?? `http://${c.HOST}:${c.PORT}`).replace(/\/+$/, '');
     return { send: (m) => own!.send(m), baseUrl, firmName: c.FIRM_NAME, log };
   };

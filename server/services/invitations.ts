@@ -40,7 +40,7 @@ function when(d: Date) {
 async function sendAccountMail(db: Db, mail: AccountMail, u: User, category: 'invite' | 'reset', tokenId: number, m: OutgoingMail): Promise<boolean> {
   try {
     const sent = await mail.send(m);
-    // The null mailer (production without SMTP_URL) sends nothing and says so with no message id.
+    // A transport that gives no message id has not confirmed anything went out.
     if (sent.messageId === null) return false;
     await db
       .insert(mailLog)

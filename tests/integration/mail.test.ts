@@ -10,6 +10,10 @@ import { parseMail } from '../../server/mail/mime';
 import { PASSWORD } from '../helpers/fixtures';
 import { sessionCookie, startLiveWorld, type LiveWorld } from '../helpers/live';
 import type { CaughtMail } from '../../server/mail/fake-smtp';
+import { MailService, mailSchedule } from '../../server/mail/service';
+import { createNullMailer } from '../../server/mail/mailer';
+import { queueAlertMail } from '../../server/mail/alert-mail';
+import { realClock } from '../../server/clock';
 
 let w: LiveWorld;
 let parts: WatchParts;
@@ -119,6 +123,29 @@ describe('alert mail', () => {
     expect(await parts.mail.digests(Date.now())).toBe(0);
     expect(await parts.mail.digests(Date.now() + 86_400_000)).toBe(1);
   });
+
+  it('is sent once when two instances share the queue: the second sender waits for the lock and finds it done', async () => {
+    // A second instance's mail service: its own object on the same database and SMTP server.
+    const other = new MailService({ ...parts.mail.ctx }, realClock, mailSchedule(w.rt.config));
+    await raise(w.f.siteA, 'controller_offline', 'controller:a-test-3');
+    parts.fakeSmtp!.clear();
+    const later = Date.now() + 3 * 86_400_000;
+    const [a, b] = await Promise.all([parts.mail.digests(later), other.digests(later)]);
+    expect(a + b).toBe(1);
+    expect(mailsTo(w.f.users.technician.email)).toHaveLength(1);
+    // and immediate alert mail: both flush the same queued item, one mail goes
+    await put('admin', { alertKinds: ['low_voltage'], alertDelivery: 'immediate', weeklySummary: false });
+    const r = await parts.store.raise({ kind: 'low_voltage', subject: 'controller:a-volts-2', siteId: w.f.siteA, controllerId: w.f.controllerA, title: 'Low supply voltage at Test Site A', message: 'twice?' });
+    await queueAlertMail(w.tdb.db, r.alert, Date.now() + 3_600_000);
+    await parts.mail.idle();
+    parts.fakeSmtp!.clear();
+    const [x, y] = await Promise.all([parts.mail.flush(Date.now() + 3_600_000), other.flush(Date.now() + 3_600_000)]);
+    const caught = parts.fakeSmtp!.messages();
+    expect(caught.length).toBe(x + y);
+    expect(mailsTo(w.f.users.admin.email)).toHaveLength(1);
+    // nobody got the same mail twice
+    expect(new Set(caught.map((m) => `${to(m)} ${m.subject}`)).size).toBe(caught.length);
+  });
 });
 
 describe('the weekly water-use summary', () => {
@@ -193,5 +220,17 @@ describe('with nothing caught by mistake', () => {
   it('records each mail sent in the mail log', async () => {
     const r = await w.tdb.db.execute<{ n: number }>(sql`select count(*)::int as n from mail_log`);
     expect(r.rows[0].n).toBeGreaterThanOrEqual(8);
+  });
+
+  it('logs nothing as sent when no mail server is set (production without SMTP_URL), and keeps the queue', async () => {
+    const unset = new MailService({ ...parts.mail.ctx, mailer: createNullMailer() }, realClock, mailSchedule(w.rt.config));
+    const count = async (table: 'mail_log' | 'mail_queue') => (await w.tdb.db.execute<{ n: number }>(sql.raw(`select count(*)::int as n from ${table} where sent_at is not null`))).rows[0].n;
+    const r = await parts.store.raise({ kind: 'controller_offline', subject: 'controller:nowhere-1', siteId: w.f.siteA, controllerId: w.f.controllerA, title: 'Offline at Test Site A', message: 'no mail server' });
+    await parts.mail.idle();
+    const [logged, sent] = [await count('mail_log'), await count('mail_queue')];
+    await queueAlertMail(w.tdb.db, r.alert, Date.now() + 86_400_000);
+    expect(await unset.flush(Date.now() + 86_400_000)).toBe(0);
+    expect(await unset.digests(Date.now() + 5 * 86_400_000)).toBe(0);
+    expect([await count('mail_log'), await count('mail_queue')]).toEqual([logged, sent]);
   });
 });
