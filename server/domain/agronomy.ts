@@ -2,13 +2,15 @@
  * Weather, plant and soil-water computations (FAO-56: Allen, Pereira, Raes & Smith 1998,
  * "Crop evapotranspiration", FAO Irrigation and Drainage Paper 56). Pure functions; angles
  * are in degrees at the interface, radians inside. Equation numbers refer to FAO-56.
- * See docs/computations.md.
+ * See docs/computations.md. No function returns a non-finite number: inputs too extreme to
+ * compute with raise DomainInputError.
  */
 import {
   DomainInputError,
   requireFinite,
   requireInRange,
   requireInteger,
+  requireFiniteResult,
   requireNonNegative,
   requireOneOf,
   requirePositive,
@@ -135,7 +137,7 @@ export function actualVapourPressureFromRhMax(tminC: number, rhMaxPct: number): 
 export function windAt2m(windSpeedMs: number, heightM = 2): number {
   const uz = requireNonNegative('windSpeedMs', windSpeedMs);
   const z = requireInRange('windHeightM', heightM, 0.5, 100, { unit: 'm' });
-  return (uz * 4.87) / Math.log(67.8 * z - 5.42);
+  return requireFiniteResult((uz * 4.87) / Math.log(67.8 * z - 5.42), [['windSpeedMs', uz, 1]]);
 }
 
 // ---------------------------------------------------------------------------------------
@@ -196,7 +198,12 @@ export function solarRadiationFromSunshine(
     throw new DomainInputError('sunshineHours', `sunshineHours (${n} h) exceeds the day length (${round(bigN, 2)} h)`);
   }
   const ratio = bigN === 0 ? 0 : Math.min(1, n / bigN);
-  return (requireFinite('a', a) + requireFinite('b', b) * ratio) * ra;
+  const rs = (requireFinite('a', a) + requireFinite('b', b) * ratio) * ra;
+  return requireFiniteResult(rs, [
+    ['ra', ra, 1],
+    ['a', a, 1],
+    ['b', b, 1],
+  ]);
 }
 
 /** Solar radiation Rs from the temperature range (Hargreaves), MJ m⁻² day⁻¹ (F56 Eq. 50). */
@@ -204,7 +211,7 @@ export function solarRadiationFromTemperature(tmaxC: number, tminC: number, raMJ
   const { tmax, tmin } = checkTemperatures(tmaxC, tminC);
   const ra = requireNonNegative('ra', raMJ);
   requireInRange('kRs', kRs, 0.1, 0.3);
-  return kRs * Math.sqrt(tmax - tmin) * ra;
+  return requireFiniteResult(kRs * Math.sqrt(tmax - tmin) * ra, [['ra', ra, 1]]);
 }
 
 /** Clear-sky solar radiation Rso, MJ m⁻² day⁻¹ (F56 Eq. 37). */
@@ -237,7 +244,12 @@ export function netLongwaveRadiation(tmaxC: number, tminC: number, eaKPa: number
 
 /** Net radiation Rn = Rns − Rnl, MJ m⁻² day⁻¹ (F56 Eq. 40). */
 export function netRadiation(rnsMJ: number, rnlMJ: number): number {
-  return requireFinite('rns', rnsMJ) - requireFinite('rnl', rnlMJ);
+  const rns = requireFinite('rns', rnsMJ);
+  const rnl = requireFinite('rnl', rnlMJ);
+  return requireFiniteResult(rns - rnl, [
+    ['rns', rns, 1],
+    ['rnl', rnl, 1],
+  ]);
 }
 
 // ---------------------------------------------------------------------------------------
@@ -379,7 +391,13 @@ export function referenceEt0Details(w: DailyWeather): Et0Details {
   // Eq. 6
   const numerator = 0.408 * delta * (rn - g) + gamma * (900 / (tmean + 273)) * u2 * (es - ea);
   const denominator = delta + gamma * (1 + 0.34 * u2);
-  const et0 = Math.max(0, numerator / denominator);
+  const et0 = Math.max(
+    0,
+    requireFiniteResult(numerator / denominator, [
+      ...(windAssumed ? [] : [['windSpeedMs', w.windSpeedMs as number, 1] as const]),
+      ['soilHeatFluxMJ', g, 1],
+    ]),
+  );
 
   return {
     et0,
@@ -415,7 +433,7 @@ export function hargreavesEt0(p: { tmaxC: number; tminC: number; latitudeDeg: nu
   const { tmax, tmin } = checkTemperatures(p.tmaxC, p.tminC);
   const ra = extraterrestrialRadiation(p.latitudeDeg, p.dayOfYear);
   const tmean = (tmax + tmin) / 2;
-  return Math.max(0, 0.0023 * (tmean + 17.8) * Math.sqrt(tmax - tmin) * MJ_TO_MM * ra);
+  return Math.max(0, requireFiniteResult(0.0023 * (tmean + 17.8) * Math.sqrt(tmax - tmin) * MJ_TO_MM * ra));
 }
 
 // ---------------------------------------------------------------------------------------
@@ -713,9 +731,13 @@ export function soilWaterBalance(days: BalanceDay[], zone: BalanceZone): Balance
     }
     const month = checkMonth(monthRaw, `days[${i}].month`);
     const kc = kcOverride ?? plantCoefficient(plantType, month, zone.latitudeDeg);
-    const etc = kc * et0;
+    const etc = requireFiniteResult(kc * et0, [[`days[${i}].et0Mm`, et0, 1]]);
     const peff = effectiveRain(rain, zone.effectiveRain);
-    let next = depletion - peff - irrigation + etc;
+    let next = requireFiniteResult(depletion - peff - irrigation + etc, [
+      [`days[${i}].irrigationMm`, irrigation, 1],
+      [`days[${i}].rainMm`, rain, 1],
+      [`days[${i}].et0Mm`, et0, 1],
+    ]);
     let deepPercolation = 0;
     if (next < 0) {
       deepPercolation = -next;
@@ -778,7 +800,16 @@ export function wateringNeed(input: WateringNeedInput): WateringNeed {
   if (input === null || typeof input !== 'object') throw new DomainInputError('input', 'wateringNeed needs an object');
   const net = requireNonNegative('depletionMm', input.depletionMm);
   const efficiency = input.efficiency ?? 1;
-  const minutes = runMinutes(net, input.precipitationRateMmH, efficiency);
+  let minutes: number;
+  try {
+    minutes = runMinutes(net, input.precipitationRateMmH, efficiency);
+  } catch (e) {
+    // runMinutes names its depth depthMm; here that input is the depletion.
+    if (e instanceof DomainInputError && e.field === 'depthMm') {
+      throw new DomainInputError('depletionMm', e.message.replace(/^depthMm/, 'depletionMm'));
+    }
+    throw e;
+  }
   const intake =
     input.intakeRateMmH !== undefined
       ? requirePositive('intakeRateMmH', input.intakeRateMmH)

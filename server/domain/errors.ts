@@ -83,3 +83,28 @@ export function requireOneOf<T extends string>(field: string, value: unknown, al
   }
   return value as T;
 }
+
+/** One factor of a product k · Π xᵢ^pᵢ: the input's name, its value and its power. */
+export type ResultFactor = readonly [field: string, value: number, power: number];
+
+/**
+ * A computed result that must be a finite number. Finite but extreme inputs can still
+ * overflow (1e308 × 60) or divide by a quantity that underflowed to 0. The error names the
+ * input that pushes the result furthest — the largest pᵢ · ln|xᵢ| among the factors — or
+ * 'result' when no factor is given.
+ */
+export function requireFiniteResult(value: number, factors: readonly ResultFactor[] = []): number {
+  if (Number.isFinite(value)) return value;
+  let blamed: ResultFactor | undefined;
+  let worst = -Infinity;
+  for (const f of factors) {
+    const pull = f[2] * Math.log(Math.abs(f[1]));
+    if (pull > worst) {
+      worst = pull;
+      blamed = f;
+    }
+  }
+  if (!blamed) throw new DomainInputError('result', 'result is not a finite number: the inputs are too extreme to compute with');
+  const [field, input] = blamed;
+  throw new DomainInputError(field, `${field} (${describe(input)}) is too extreme: the result would not be a finite number`);
+}

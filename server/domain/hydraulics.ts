@@ -1,12 +1,14 @@
 /**
  * Supply, zone and pipe hydraulics for landscape irrigation. Pure functions, SI units at the
- * interface (L/min, mm, m, m², mm/h, m/s). See docs/computations.md for sources.
+ * interface (L/min, mm, m, m², mm/h, m/s). See docs/computations.md for sources. No function
+ * returns a non-finite number: inputs too extreme to compute with raise DomainInputError.
  */
 import {
   DomainInputError,
   requireInRange,
   requireInteger,
   requireNonNegative,
+  requireFiniteResult,
   requireOneOf,
   requirePositive,
 } from './errors';
@@ -30,7 +32,10 @@ function checkMargin(marginPct: unknown): number {
 export function bucketTestFlow(volumeL: number, seconds: number): number {
   requirePositive('volumeL', volumeL);
   requirePositive('seconds', seconds);
-  return (60 * volumeL) / seconds;
+  return requireFiniteResult((60 * volumeL) / seconds, [
+    ['volumeL', volumeL, 1],
+    ['seconds', seconds, -1],
+  ]);
 }
 
 /** Supply left for a zone after the safety margin, L/min: supply × (1 − margin/100). */
@@ -45,21 +50,30 @@ export function maxHeadsPerZone(supplyLpm: number, headLpm: number, marginPct = 
   requirePositive('headLpm', headLpm);
   const usable = usableSupply(supplyLpm, marginPct);
   const ratio = usable / headLpm;
-  return Math.floor(ratio + REL_EPS * Math.max(1, ratio));
+  return requireFiniteResult(Math.floor(ratio + REL_EPS * Math.max(1, ratio)), [
+    ['supplyLpm', supplyLpm, 1],
+    ['headLpm', headLpm, -1],
+  ]);
 }
 
 /** Flow of a zone, L/min: head count × flow per head. */
 export function zoneFlow(headCount: number, flowPerHeadLpm: number): number {
   requireInteger('headCount', headCount, 0);
   requireNonNegative('flowPerHeadLpm', flowPerHeadLpm);
-  return headCount * flowPerHeadLpm;
+  return requireFiniteResult(headCount * flowPerHeadLpm, [
+    ['headCount', headCount, 1],
+    ['flowPerHeadLpm', flowPerHeadLpm, 1],
+  ]);
 }
 
 /** Precipitation rate, mm/h: 60 × flow (L/min) / area (m²). */
 export function precipitationRate(flowLpm: number, areaM2: number): number {
   requireNonNegative('flowLpm', flowLpm);
   requirePositive('areaM2', areaM2);
-  return (60 * flowLpm) / areaM2;
+  return requireFiniteResult((60 * flowLpm) / areaM2, [
+    ['flowLpm', flowLpm, 1],
+    ['areaM2', areaM2, -1],
+  ]);
 }
 
 /**
@@ -69,36 +83,49 @@ export function precipitationRate(flowLpm: number, areaM2: number): number {
 export function areaPerHead(spacingM: number, pattern: 'square' | 'triangular' = 'square'): number {
   requirePositive('spacingM', spacingM);
   requireOneOf('pattern', pattern, ['square', 'triangular'] as const);
-  return pattern === 'square' ? spacingM * spacingM : spacingM * spacingM * (Math.sqrt(3) / 2);
+  const area = pattern === 'square' ? spacingM * spacingM : spacingM * spacingM * (Math.sqrt(3) / 2);
+  return requireFiniteResult(area, [['spacingM', spacingM, 2]]);
 }
 
 /**
  * Hazen–Williams friction loss, metres of head.
- * SI form hf = 10.67 L Q^1.852 / (C^1.852 D^4.87), Q in m³/s, D and L in m.
+ * SI form hf = 10.67 L Q^1.852 / (C^1.852 D^4.87), Q in m³/s, D and L in m. No flow or no
+ * length loses nothing (0), whatever the bore.
  */
 export function hazenWilliamsLoss(flowLpm: number, innerDiameterMm: number, lengthM: number, c = 150): number {
   requireNonNegative('flowLpm', flowLpm);
   requirePositive('innerDiameterMm', innerDiameterMm);
   requireNonNegative('lengthM', lengthM);
   requirePositive('c', c);
+  if (flowLpm === 0 || lengthM === 0) return 0;
   const q = flowLpm / 60_000;
   const d = innerDiameterMm / 1000;
-  return (10.67 * lengthM * Math.pow(q, 1.852)) / (Math.pow(c, 1.852) * Math.pow(d, 4.87));
+  const loss = (10.67 * lengthM * Math.pow(q, 1.852)) / (Math.pow(c, 1.852) * Math.pow(d, 4.87));
+  return requireFiniteResult(loss, [
+    ['flowLpm', flowLpm, 1.852],
+    ['innerDiameterMm', innerDiameterMm, -4.87],
+    ['lengthM', lengthM, 1],
+    ['c', c, -1.852],
+  ]);
 }
 
 /** Mean water velocity in a full pipe, m/s: Q / (π D² / 4). */
 export function pipeVelocity(flowLpm: number, innerDiameterMm: number): number {
   requireNonNegative('flowLpm', flowLpm);
   requirePositive('innerDiameterMm', innerDiameterMm);
+  if (flowLpm === 0) return 0;
   const q = flowLpm / 60_000;
   const d = innerDiameterMm / 1000;
-  return q / ((Math.PI * d * d) / 4);
+  return requireFiniteResult(q / ((Math.PI * d * d) / 4), [
+    ['flowLpm', flowLpm, 1],
+    ['innerDiameterMm', innerDiameterMm, -2],
+  ]);
 }
 
 /** Metres of water head → kPa (9.80665 kPa per metre). */
 export function headLossKPa(headM: number): number {
   requireNonNegative('headM', headM);
-  return headM * KPA_PER_METRE_HEAD;
+  return requireFiniteResult(headM * KPA_PER_METRE_HEAD, [['headM', headM, 1]]);
 }
 
 /** Minutes to apply a net depth: depth / efficiency / PR × 60. */
@@ -106,7 +133,11 @@ export function runMinutes(depthMm: number, precipitationRateMmH: number, effici
   requireNonNegative('depthMm', depthMm);
   requirePositive('precipitationRateMmH', precipitationRateMmH);
   requireInRange('efficiency', efficiency, 0, 1, { minExclusive: true });
-  return ((depthMm / efficiency) / precipitationRateMmH) * 60;
+  return requireFiniteResult(((depthMm / efficiency) / precipitationRateMmH) * 60, [
+    ['depthMm', depthMm, 1],
+    ['efficiency', efficiency, -1],
+    ['precipitationRateMmH', precipitationRateMmH, -1],
+  ]);
 }
 
 // ---------------------------------------------------------------------------------------
@@ -134,7 +165,8 @@ export interface ProposedZone {
 export function groupHeadsIntoZones(heads: PlannedHead[], supplyLpm: number, marginPct = 0): ProposedZone[] {
   if (!Array.isArray(heads)) throw new DomainInputError('heads', 'heads must be an array');
   const usable = usableSupply(supplyLpm, marginPct);
-  const limit = usable * (1 + REL_EPS);
+  // Capped so that a zone's summed flow can never reach Infinity and still "fit".
+  const limit = Math.min(usable * (1 + REL_EPS), Number.MAX_VALUE);
   const seen = new Set<string>();
   heads.forEach((h, i) => {
     if (h === null || typeof h !== 'object') throw new DomainInputError(`heads[${i}]`, `heads[${i}] must be an object`);
@@ -207,6 +239,11 @@ export interface CycleAndSoakResult {
 
 export const DEFAULT_SURFACE_STORAGE_MM = 2.5;
 export const DEFAULT_MIN_CYCLE_MINUTES = 1;
+/**
+ * Most cycles one split may give. A guard against absurd input, not a rule of the trade: a
+ * whole day holds 1,440 one-minute cycles.
+ */
+export const MAX_SPLIT_CYCLES = 10_000;
 
 /**
  * Split a run into cycles with soak time between them.
@@ -235,17 +272,32 @@ export function cycleAndSoak(input: CycleAndSoakInput): CycleAndSoakResult {
       ? DEFAULT_SURFACE_STORAGE_MM
       : requirePositive('surfaceStorageMm', input.surfaceStorageMm);
 
-  const cycleLimit = pr > ir ? (60 * storage) / (pr - ir) : null;
+  const cycleLimit =
+    pr > ir
+      ? requireFiniteResult((60 * storage) / (pr - ir), [
+          ['surfaceStorageMm', storage, 1],
+          ['precipitationRateMmH', pr, -1],
+        ])
+      : null;
   if (total === 0) return { cycles: [], soakMinutes: 0, cycleLimitMinutes: cycleLimit, runoffExpected: false };
   if (cycleLimit === null) return { cycles: [total], soakMinutes: 0, cycleLimitMinutes: null, runoffExpected: false };
 
   const cap = Math.max(cycleLimit, minCycle);
   // Work in hundredths of a minute; keep each cycle at or below the cap after rounding.
   const totalH = Math.round(total * 100);
+  if (!Number.isSafeInteger(totalH)) {
+    throw new DomainInputError('totalMinutes', `totalMinutes (${total}) is too long to split into cycles`);
+  }
   const capH = Math.max(1, Math.floor(cap * 100 - 0.5));
   let n = total <= cap ? 1 : Math.ceil(totalH / capH);
   if (n > maxCycles) n = maxCycles;
   if (n > totalH) n = Math.max(1, totalH);
+  if (n > MAX_SPLIT_CYCLES) {
+    throw new DomainInputError(
+      'totalMinutes',
+      `totalMinutes (${total}) would need ${n} cycles of at most ${round(cap, 2)} min; at most ${MAX_SPLIT_CYCLES} are planned`,
+    );
+  }
 
   let cycles: number[];
   if (n === 1) {
@@ -266,6 +318,10 @@ export function cycleAndSoak(input: CycleAndSoakInput): CycleAndSoakResult {
   if (cycles.length > 1) {
     const pondedMm = Math.min(((pr - ir) * longest) / 60, storage);
     soakMinutes = Math.max(minSoak, Math.ceil(((60 * pondedMm) / ir) * 100 - 1e-6) / 100);
+    requireFiniteResult(soakMinutes, [
+      ['intakeRateMmH', ir, -1],
+      ['surfaceStorageMm', storage, 1],
+    ]);
   }
   return { cycles, soakMinutes, cycleLimitMinutes: cycleLimit, runoffExpected };
 }

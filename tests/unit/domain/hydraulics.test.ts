@@ -18,6 +18,7 @@ import {
   type HeadType,
   type PlannedHead,
 } from '../../../server/domain/hydraulics';
+import { DomainInputError } from '../../../server/domain/errors';
 import { ft2ToM2, gpmToLpm, mToFt, mmToIn } from '../../../server/domain/units';
 import { expectFieldError, expectNear, expectRelative } from './helpers';
 
@@ -30,6 +31,7 @@ describe('bucket test', () => {
   });
 
   it('scales with volume and inversely with time', () => {
+    // definition: flow (L/min) = volume (L) ÷ time (s) × 60 s/min
     fc.assert(
       fc.property(positive(0.1, 1000), positive(0.5, 3600), (v, s) => {
         expectRelative((bucketTestFlow(v, s) * s) / 60, v, 1e-12);
@@ -38,6 +40,7 @@ describe('bucket test', () => {
   });
 
   it('rejects an empty bucket, zero or negative seconds and NaN', () => {
+    // definition: a bucket test needs some water and some time
     expectFieldError(() => bucketTestFlow(0, 10), 'volumeL');
     expectFieldError(() => bucketTestFlow(-5, 10), 'volumeL');
     expectFieldError(() => bucketTestFlow(5, 0), 'seconds');
@@ -54,6 +57,8 @@ describe('heads per zone', () => {
   });
 
   it('keeps a margin below the bare maximum', () => {
+    // common practice (references.md: keep a margin below the bare maximum for pressure swings);
+    // the figures follow by definition: usable = supply × (1 − margin/100), heads = floor(usable / head flow).
     // 30 L/min with a 20 % margin leaves 24 L/min: 12 heads of 2 L/min
     expect(usableSupply(30, 20)).toBeCloseTo(24, 10);
     expect(maxHeadsPerZone(30, 2, 20)).toBe(12);
@@ -62,6 +67,7 @@ describe('heads per zone', () => {
   });
 
   it('does not lose a head to floating-point error when the division is exact', () => {
+    // definition: these divisions are exact in decimals (0.3 / 0.1 = 3, 27 / 0.9 = 30), so floor must keep them;
     // 0.3 / 0.1 is 2.9999999999999996 in binary floating point
     expect(maxHeadsPerZone(0.3, 0.1)).toBe(3);
     // 27 / 0.9 and 30 × 0.9 / 0.9
@@ -70,6 +76,7 @@ describe('heads per zone', () => {
   });
 
   it('never plans more flow than the usable supply, and never leaves room for one more head', () => {
+    // definition of floor(usable / head flow): n heads fit, n + 1 do not
     fc.assert(
       fc.property(positive(0, 500), positive(0.01, 60), fc.double({ min: 0, max: 99.9, noNaN: true }), (s, h, m) => {
         const n = maxHeadsPerZone(s, h, m);
@@ -82,6 +89,8 @@ describe('heads per zone', () => {
   });
 
   it('rejects a margin outside 0…100 %, a zero head flow and a negative supply', () => {
+    // definition: a margin of 100 % or more leaves no supply, a negative one adds water that is not there;
+    // a head needs some flow, and a supply cannot be negative
     expectFieldError(() => maxHeadsPerZone(30, 2, 100), 'marginPct');
     expectFieldError(() => maxHeadsPerZone(30, 2, -1), 'marginPct');
     expectFieldError(() => maxHeadsPerZone(30, 0), 'headLpm');
@@ -91,6 +100,7 @@ describe('heads per zone', () => {
   });
 
   it('adds up a zone flow from its heads and rejects fractional head counts', () => {
+    // definition: zone flow = head count × flow per head (12 × 2.5 = 30); heads come whole
     expect(zoneFlow(12, 2.5)).toBeCloseTo(30, 10);
     expect(zoneFlow(0, 2.5)).toBe(0);
     expectFieldError(() => zoneFlow(2.5, 2), 'headCount');
@@ -131,6 +141,7 @@ describe('precipitation rate', () => {
   });
 
   it('rejects zero or negative area and negative flow', () => {
+    // definition: a rate over no area, or a negative flow, means nothing
     expectFieldError(() => precipitationRate(10, 0), 'areaM2');
     expectFieldError(() => precipitationRate(10, -5), 'areaM2');
     expectFieldError(() => precipitationRate(-1, 10), 'flowLpm');
@@ -185,6 +196,7 @@ describe('pipe friction and velocity', () => {
   });
 
   it('rejects zero diameter, negative length or flow, and a non-positive C', () => {
+    // definition: the Hazen–Williams formula needs a bore, a length, a flow and a positive roughness C
     expectFieldError(() => hazenWilliamsLoss(60, 0, 100), 'innerDiameterMm');
     expectFieldError(() => hazenWilliamsLoss(60, 25, -1), 'lengthM');
     expectFieldError(() => hazenWilliamsLoss(-60, 25, 100), 'flowLpm');
@@ -197,12 +209,16 @@ describe('pipe friction and velocity', () => {
 
 describe('run minutes', () => {
   it('takes 60 minutes to apply 10 mm at 10 mm/h, and longer at lower efficiency', () => {
+    // definition: minutes = depth (mm) ÷ rate (mm/h) × 60 min/h
     expect(runMinutes(10, 10)).toBeCloseTo(60, 10);
+    // definition of application efficiency: gross depth = net ÷ efficiency; 10 ÷ 0.8 = 12.5 mm at 10 mm/h = 75 min
     expect(runMinutes(10, 10, 0.8)).toBeCloseTo(75, 10);
+    // definition: nothing to apply takes no time
     expect(runMinutes(0, 10)).toBe(0);
   });
 
   it('applies exactly the asked depth: minutes × PR / 60 × efficiency = depth', () => {
+    // definition: the same relation read backwards
     fc.assert(
       fc.property(positive(0, 100), positive(0.5, 200), fc.double({ min: 0.3, max: 1, noNaN: true }), (depth, pr, eff) => {
         expectNear(((runMinutes(depth, pr, eff) * pr) / 60) * eff, depth, 1e-9 * Math.max(1, depth));
@@ -211,6 +227,8 @@ describe('run minutes', () => {
   });
 
   it('rejects efficiency outside (0, 1], zero rate and negative depth', () => {
+    // definition: efficiency is a fraction of the water applied, above 0 and at most 1; a zone
+    // applying nothing never finishes; a depth cannot be negative
     expectFieldError(() => runMinutes(10, 10, 0), 'efficiency');
     expectFieldError(() => runMinutes(10, 10, 1.2), 'efficiency');
     expectFieldError(() => runMinutes(10, 0), 'precipitationRateMmH');
@@ -230,6 +248,7 @@ describe('grouping heads into zones', () => {
   ];
 
   it('never puts sprays and rotors on the same zone', () => {
+    // common practice (design.md: sprays and rotors differ by an order of magnitude, so zones never mix them)
     const zones = groupHeadsIntoZones(heads, 30);
     for (const z of zones) {
       const types = new Set(z.headIds.map((id) => heads.find((h) => h.id === id)!.headType));
@@ -240,12 +259,16 @@ describe('grouping heads into zones', () => {
 
   it('packs 30 L of sprays into two zones on a 24 L/min usable supply', () => {
     const zones = groupHeadsIntoZones(heads, 30, 20).filter((z) => z.headType === 'spray');
-    // three 8 L/min sprays fill 24 L/min; the 6 L/min one needs a second zone
+    // definition: 30 L/min less a 20 % margin is 24 L/min usable; first-fit decreasing (the
+    // library's packing rule, docs/computations.md) worked by hand: three 8 L/min sprays fill
+    // 24 L/min; the 6 L/min one needs a second zone
     expect(zones.map((z) => z.headIds)).toEqual([['s1', 's2', 's3'], ['s4']]);
     expect(zones.map((z) => z.flowLpm)).toEqual([24, 6]);
   });
 
   it('rejects a head that alone needs more than the usable supply, and duplicate ids', () => {
+    // definition: a 40 L/min head fits no zone of a 30 L/min supply; an id names one head;
+    // the head types are the library's list; a head needs some flow
     expectFieldError(() => groupHeadsIntoZones([{ id: 'a', flowLpm: 40, headType: 'rotor' }], 30), 'heads[0].flowLpm');
     expectFieldError(
       () =>
@@ -273,6 +296,7 @@ describe('grouping heads into zones', () => {
     .map((hs) => hs.map((h, i) => ({ ...h, id: `h${i}` })));
 
   it('places every head exactly once, never mixes types and never exceeds the usable supply', () => {
+    // definition of a grouping within the usable supply; one type a zone is common practice (design.md)
     fc.assert(
       fc.property(headList, fc.double({ min: 20, max: 200, noNaN: true }), fc.double({ min: 0, max: 50, noNaN: true }), (hs, supply, margin) => {
         const usable = supply * (1 - margin / 100);
@@ -293,6 +317,9 @@ describe('grouping heads into zones', () => {
   });
 
   it('uses no more zones than first-fit guarantees (fewer than 2 × demand / supply + 1 per type)', () => {
+    // lower bound by definition: ⌈demand / supply⌉ zones are needed to carry the demand at all.
+    // upper bound, value from memory (bin packing, Johnson 1973): first fit never leaves two
+    // zones each at most half full, so it uses fewer than 2 × demand / supply + 1 of them
     fc.assert(
       fc.property(headList, fc.double({ min: 20, max: 200, noNaN: true }), (hs, supply) => {
         const zones = groupHeadsIntoZones(hs, supply);
@@ -309,7 +336,8 @@ describe('grouping heads into zones', () => {
 
 describe('cycle and soak', () => {
   it('runs a single cycle when the soil takes water faster than the zone applies it', () => {
-    // rotors at 10 mm/h on a loam taking 15 mm/h
+    // common practice rule (docs/computations.md): no runoff while PR ≤ intake rate, so one cycle;
+    // rotors at 10 mm/h on a loam taking 15 mm/h (loam 10–20 mm/h, Brouwer et al. 1985, FAO Training Manual 1)
     const r = cycleAndSoak({ totalMinutes: 45, precipitationRateMmH: 10, intakeRateMmH: 15 });
     expect(r.cycles).toEqual([45]);
     expect(r.soakMinutes).toBe(0);
@@ -317,20 +345,24 @@ describe('cycle and soak', () => {
   });
 
   it('splits a spray zone on clay into short cycles with a soak between them', () => {
-    // common practice rule (docs/computations.md): cycle ≤ 60 S / (PR − IR), S = 2.5 mm
+    // common practice rule (docs/computations.md): cycle ≤ 60 S / (PR − IR), S = 2.5 mm;
+    // sprays at 40 mm/h on a clay taking 3 mm/h (clay 1–5 mm/h, Brouwer et al. 1985, FAO Training Manual 1)
     const r = cycleAndSoak({ totalMinutes: 20, precipitationRateMmH: 40, intakeRateMmH: 3 });
     const limit = (60 * 2.5) / (40 - 3); // ≈ 4.05 min
     expectNear(r.cycleLimitMinutes!, limit, 1e-9);
     expect(r.cycles.length).toBe(Math.ceil(20 / limit));
     expect(r.cycles.every((c) => c <= limit)).toBe(true);
     expectNear(r.cycles.reduce((a, b) => a + b, 0), 20, 1e-9);
-    // soak lets the ponded (40 − 3) × cycle / 60 mm soak in at 3 mm/h
+    // common practice rule: the soak lets the ponded (40 − 3) × cycle / 60 mm soak in at 3 mm/h
     const ponded = ((40 - 3) * Math.max(...r.cycles)) / 60;
     expectNear(r.soakMinutes, (60 * ponded) / 3, 0.01);
     expect(r.runoffExpected).toBe(false);
   });
 
   it('keeps the total exact when it does not divide evenly', () => {
+    // common practice rule (docs/computations.md): cycle ≤ 60 × 2.5 / (40 − 15) = 6 min, kept at
+    // 5.99 after rounding, so ⌈17.333 / 5.99⌉ = 3 cycles; by definition they add up to the total,
+    // and the library's rule of equal cycles in hundredths keeps them within 0.01 min of each other
     const r = cycleAndSoak({ totalMinutes: 17.333, precipitationRateMmH: 40, intakeRateMmH: 15 });
     expect(r.cycles.length).toBe(3);
     expectNear(r.cycles.reduce((a, b) => a + b, 0), 17.333, 1e-9);
@@ -338,6 +370,8 @@ describe('cycle and soak', () => {
   });
 
   it('honours maxCycles and the minimum soak, and flags the runoff that follows', () => {
+    // definition of the options; runoff follows from the common practice rule: 30 min in 3 cycles
+    // is 10 min each, above the 60 × 2.5 / (40 − 3) ≈ 4.05 min the soil takes without runoff
     const r = cycleAndSoak({ totalMinutes: 30, precipitationRateMmH: 40, intakeRateMmH: 3, maxCycles: 3, minSoakMinutes: 60 });
     expect(r.cycles.length).toBe(3);
     expectNear(r.cycles.reduce((a, b) => a + b, 0), 30, 1e-9);
@@ -346,10 +380,12 @@ describe('cycle and soak', () => {
   });
 
   it('returns no cycles for zero minutes', () => {
+    // definition: nothing to run, no cycle
     expect(cycleAndSoak({ totalMinutes: 0, precipitationRateMmH: 40, intakeRateMmH: 3 }).cycles).toEqual([]);
   });
 
   it('always adds the cycles up to the full run time and never applies more per cycle than the soil absorbs', () => {
+    // definition (cycles split the run); the runoff bound is the common practice rule of docs/computations.md
     fc.assert(
       fc.property(
         fc.double({ min: 0.01, max: 240, noNaN: true }),
@@ -378,6 +414,8 @@ describe('cycle and soak', () => {
   });
 
   it('rejects negative minutes, zero rates and a zero cycle limit', () => {
+    // definition: a run cannot last less than nothing; the rule needs both rates, at least one
+    // cycle and some surface storage
     expectFieldError(() => cycleAndSoak({ totalMinutes: -1, precipitationRateMmH: 40, intakeRateMmH: 3 }), 'totalMinutes');
     expectFieldError(() => cycleAndSoak({ totalMinutes: 10, precipitationRateMmH: 0, intakeRateMmH: 3 }), 'precipitationRateMmH');
     expectFieldError(() => cycleAndSoak({ totalMinutes: 10, precipitationRateMmH: 40, intakeRateMmH: Number.NaN }), 'intakeRateMmH');
@@ -391,6 +429,8 @@ describe('cycle and soak', () => {
 
 describe('zone warnings', () => {
   it('warns when a zone draws more than the usable supply', () => {
+    // common practice (design.md, "supply first": zones stay within the supply less a margin);
+    // definition of the margin: 30 L/min less 10 % is 27 L/min, so 28 warns and 27 does not
     const w = zoneWarnings({ flowLpm: 28, supplyLpm: 30, marginPct: 10 });
     expect(w.map((x) => x.code)).toEqual(['over_supply']);
     expectNear(w[0].limit!, 27, 1e-9);
@@ -400,24 +440,117 @@ describe('zone warnings', () => {
   it('warns when the pipe velocity is above 1.5 m/s', () => {
     // B. Boman, "Hydraulics", UF/IFAS: keep velocity at or below 5 ft/s (≈ 1.5 m/s)
     expectNear(mToFt(1.5), 5, 0.1);
+    // computed (references.md): 1 L/s in a 25 mm bore moves at 2.04 m/s
     expect(zoneWarnings({ flowLpm: 60, innerDiameterMm: 25 }).map((x) => x.code)).toEqual(['velocity_high']);
-    // 40 L/min in 27 mm: ≈ 1.16 m/s
+    // computed: v = Q / (π D² / 4), 40 L/min in 27 mm ≈ 1.16 m/s, under the limit
     expect(zoneWarnings({ flowLpm: 40, innerDiameterMm: 27 })).toEqual([]);
   });
 
   it('warns when sprays and rotors share a zone, and separately for other mixes', () => {
+    // common practice (design.md: sprays and rotors differ by an order of magnitude, so zones
+    // never mix them; other mixes also apply at different rates); one type alone is no mix
     expect(zoneWarnings({ flowLpm: 10, headTypes: ['spray', 'rotor', 'spray'] }).map((x) => x.code)).toEqual(['mixed_spray_rotor']);
     expect(zoneWarnings({ flowLpm: 10, headTypes: ['drip', 'bubbler'] }).map((x) => x.code)).toEqual(['mixed_head_types']);
     expect(zoneWarnings({ flowLpm: 10, headTypes: ['rotor', 'rotor'] })).toEqual([]);
   });
 
   it('reports all problems of a zone at once', () => {
+    // 60 > 30 L/min (no margin, definition); computed v = Q / (π D² / 4) = 3.18 m/s in 20 mm, above
+    // 1.5 m/s (Boman, UF/IFAS); sprays with rotors (common practice, design.md)
     const codes = zoneWarnings({ flowLpm: 60, supplyLpm: 30, innerDiameterMm: 20, headTypes: ['spray', 'rotor'] }).map((x) => x.code);
     expect(codes.sort()).toEqual(['mixed_spray_rotor', 'over_supply', 'velocity_high']);
   });
 
   it('rejects negative flow and unknown head types', () => {
+    // definition: a flow cannot be negative; head types are the library's list
     expectFieldError(() => zoneWarnings({ flowLpm: -1 }), 'flowLpm');
     expectFieldError(() => zoneWarnings({ flowLpm: 1, headTypes: ['nozzle' as HeadType] }), 'headTypes[0]');
+  });
+});
+
+describe('results too large to compute', () => {
+  // definition: every function returns a finite number or refuses, naming the input that
+  // pushes the result furthest out of range (the largest power × ln|input|)
+  it('refuses a bucket test whose flow would overflow, naming the input responsible', () => {
+    expectFieldError(() => bucketTestFlow(1e308, 1), 'volumeL');
+    expectFieldError(() => bucketTestFlow(1, 1e-308), 'seconds');
+    expect(Number.isFinite(bucketTestFlow(1e306, 1))).toBe(true);
+  });
+
+  it('refuses run minutes, head counts, zone flows and rates that would be infinite', () => {
+    // runMinutes(1e308, 1e-300, 1e-300): 1e308 outweighs either 1e-300 divisor
+    expectFieldError(() => runMinutes(1e308, 1e-300, 1e-300), 'depthMm');
+    expectFieldError(() => runMinutes(1, 1e-310, 1), 'precipitationRateMmH');
+    expectFieldError(() => runMinutes(1, 1e-10, 1e-300), 'efficiency');
+    expectFieldError(() => maxHeadsPerZone(1e5, 5e-324), 'headLpm');
+    expectFieldError(() => zoneFlow(500, 1e308), 'flowPerHeadLpm');
+    expectFieldError(() => zoneFlow(1e300, 1e10), 'headCount');
+    expectFieldError(() => precipitationRate(1e308, 1), 'flowLpm');
+    expectFieldError(() => precipitationRate(1, 1e-320), 'areaM2');
+    expectFieldError(() => areaPerHead(1e200), 'spacingM');
+  });
+
+  it('refuses pipe losses and velocities that would be infinite, and keeps no flow at zero', () => {
+    // hazenWilliamsLoss(1e300, 1e-300, 1e300): the bore's power 4.87 weighs most
+    expectFieldError(() => hazenWilliamsLoss(1e300, 1e-300, 1e300), 'innerDiameterMm');
+    expectFieldError(() => hazenWilliamsLoss(1e300, 25, 100), 'flowLpm');
+    expectFieldError(() => hazenWilliamsLoss(60, 25, 1e308, 1), 'lengthM');
+    expectFieldError(() => pipeVelocity(60, 1e-200), 'innerDiameterMm');
+    expectFieldError(() => pipeVelocity(1e308, 1e-3), 'flowLpm');
+    expectFieldError(() => headLossKPa(1e308), 'headM');
+    // definition: no flow, or no pipe, loses nothing and moves nothing, however small the bore
+    expect(hazenWilliamsLoss(0, 1e-300, 100)).toBe(0);
+    expect(hazenWilliamsLoss(60, 1e-300, 0)).toBe(0);
+    expect(pipeVelocity(0, 1e-300)).toBe(0);
+  });
+
+  it('refuses a cycle split whose limit, count or soak cannot be computed', () => {
+    expectFieldError(() => cycleAndSoak({ totalMinutes: 10, precipitationRateMmH: 40, intakeRateMmH: 3, surfaceStorageMm: 1e308 }), 'surfaceStorageMm');
+    expectFieldError(() => cycleAndSoak({ totalMinutes: 1e307, precipitationRateMmH: 40, intakeRateMmH: 3 }), 'totalMinutes');
+    // 1e6 min in cycles of at most 4.05 min would be about 250,000 cycles
+    expectFieldError(() => cycleAndSoak({ totalMinutes: 1e6, precipitationRateMmH: 40, intakeRateMmH: 3 }), 'totalMinutes');
+    expectFieldError(() => cycleAndSoak({ totalMinutes: 10, precipitationRateMmH: 40, intakeRateMmH: 1e-320 }), 'intakeRateMmH');
+  });
+
+  it('never sums two zones-worth of flow into one infinite zone', () => {
+    // definition: 1e308 + 1e308 is not representable, so the two heads cannot share a zone
+    const zones = groupHeadsIntoZones(
+      [
+        { id: 'a', flowLpm: 1e308, headType: 'rotor' },
+        { id: 'b', flowLpm: 1e308, headType: 'rotor' },
+      ],
+      Number.MAX_VALUE,
+    );
+    expect(zones.map((z) => z.headIds)).toEqual([['a'], ['b']]);
+    expect(zones.every((z) => Number.isFinite(z.flowLpm))).toBe(true);
+  });
+
+  it('never returns a non-finite number for finite input of any size', () => {
+    const any = fc.double({ min: 5e-324, max: Number.MAX_VALUE, noNaN: true, noDefaultInfinity: true });
+    const finiteOrRefused = (f: () => number | number[]) => {
+      try {
+        const out = f();
+        for (const x of Array.isArray(out) ? out : [out]) expect(Number.isFinite(x), `got ${x}`).toBe(true);
+      } catch (e) {
+        expect(e).toBeInstanceOf(DomainInputError);
+      }
+    };
+    fc.assert(
+      fc.property(any, any, any, (a, b, c) => {
+        finiteOrRefused(() => bucketTestFlow(a, b));
+        finiteOrRefused(() => runMinutes(a, b, Math.min(1, c)));
+        finiteOrRefused(() => maxHeadsPerZone(a, b));
+        finiteOrRefused(() => precipitationRate(a, b));
+        finiteOrRefused(() => hazenWilliamsLoss(a, b, c));
+        finiteOrRefused(() => hazenWilliamsLoss(a, b, c, Math.max(1e-300, c)));
+        finiteOrRefused(() => pipeVelocity(a, b));
+        finiteOrRefused(() => headLossKPa(a));
+        finiteOrRefused(() => areaPerHead(a, 'triangular'));
+        finiteOrRefused(() => {
+          const r = cycleAndSoak({ totalMinutes: Math.min(a, 1e4), precipitationRateMmH: b, intakeRateMmH: c });
+          return [...r.cycles, r.soakMinutes, r.cycleLimitMinutes ?? 0];
+        });
+      }),
+    );
   });
 });

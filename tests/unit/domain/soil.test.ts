@@ -322,24 +322,54 @@ describe('watering need', () => {
   it('turns a depletion into gross depth, minutes and cycles that add up', () => {
     // 20 mm net on clay with sprays at 40 mm/h and 80 % efficiency
     const need = wateringNeed({ depletionMm: 20, precipitationRateMmH: 40, efficiency: 0.8, soil: 'clay' });
+    // FAO-56 Ch. 8: the net depth refills the root zone to field capacity, i.e. the depletion
     expect(need.netDepthMm).toBe(20);
+    // definition of application efficiency: gross = net ÷ efficiency = 20 ÷ 0.8 = 25 mm
     expectNear(need.grossDepthMm, 25, 1e-9);
+    // definition: minutes = gross depth ÷ rate × 60 = 25 ÷ 40 × 60 = 37.5 min, the same as runMinutes
     expectNear(need.minutes, runMinutes(20, 40, 0.8), 1e-12);
     expectNear(need.minutes, 37.5, 1e-9);
+    // definition: the cycles split the run, so they add up to it
     expectNear(need.cycles.reduce((a, b) => a + b, 0), 37.5, 1e-9);
-    // cycle limit 60 × 2.5 / (40 − 3) min (common practice rule, clay intake 3 mm/h)
+    // cycle limit 60 × 2.5 / (40 − 3) min (common practice rule, docs/computations.md), clay
+    // intake 3 mm/h (midpoint of 1–5 mm/h, Brouwer et al. 1985, FAO Training Manual 1, Annex 2)
     expect(need.cycles.length).toBe(Math.ceil(37.5 / ((60 * 2.5) / 37)));
+    // common practice rule: more than one cycle means a soak between them
     expect(need.soakMinutes).toBeGreaterThan(0);
   });
 
   it('runs one cycle on a soil that takes the water as fast as it comes', () => {
+    // sandy loam takes in 25 mm/h (midpoint of 20–30 mm/h, Brouwer et al. 1985, FAO Training
+    // Manual 1, Annex 2), above 12 mm/h: one cycle, no soak (common practice rule,
+    // docs/computations.md); 10 mm ÷ 12 mm/h × 60 = 50 min (definition)
     const need = wateringNeed({ depletionMm: 10, precipitationRateMmH: 12, soil: 'sandy_loam' });
     expect(need.cycles).toEqual([50]);
     expect(need.soakMinutes).toBe(0);
   });
 
   it('rejects negative depletion and bad efficiency', () => {
+    // definition: a depletion cannot be negative; efficiency is a fraction above 0 and at most 1
     expectFieldError(() => wateringNeed({ depletionMm: -1, precipitationRateMmH: 12 }), 'depletionMm');
     expectFieldError(() => wateringNeed({ depletionMm: 5, precipitationRateMmH: 12, efficiency: 0 }), 'efficiency');
+  });
+});
+
+describe('results too large to compute', () => {
+  // definition: the balance and the watering need return finite numbers or refuse, naming the
+  // input that pushes the result furthest out of range
+  const zone = { plantType: 'cool_season_turf' as PlantType, soil: 'loam' as const, rootDepthM: 0.3, month: 7 };
+
+  it('refuses a day whose plant demand or water books would overflow', () => {
+    expectFieldError(() => soilWaterBalance([{ et0Mm: Number.MAX_VALUE, rainMm: 0, irrigationMm: 0 }], { ...zone, plantCoefficient: 2 }), 'days[0].et0Mm');
+    expectFieldError(() => soilWaterBalance([{ et0Mm: 0, rainMm: 1e308, irrigationMm: 1.7e308 }], zone), 'days[0].irrigationMm');
+    // large but representable water simply drains below the root zone
+    const [day] = soilWaterBalance([{ et0Mm: 0, rainMm: 0, irrigationMm: 1e300 }], zone);
+    expect(day.depletionMm).toBe(0);
+    expect(day.deepPercolationMm).toBe(1e300);
+  });
+
+  it('refuses a watering need whose minutes would be infinite, naming the depletion', () => {
+    expectFieldError(() => wateringNeed({ depletionMm: 1e308, precipitationRateMmH: 1e-300 }), 'depletionMm');
+    expectFieldError(() => wateringNeed({ depletionMm: 10, precipitationRateMmH: 1e-320 }), 'precipitationRateMmH');
   });
 });
