@@ -47,7 +47,7 @@ export function sendUpload(res: Parameters<RequestHandler>[1], file: string, con
   });
   const stream = fs.createReadStream(file);
   stream.on('error', () => {
-    if (!res.headersSent) res.status(404).json({ error: { code: 'not_found', message: 'The stored file is missing' } });
+    if (!res.headersSent) res.status(404).json({ error: { code: 'not_found', message: 'The stored file is missing', details: null } });
     else res.end();
   });
   stream.pipe(res);

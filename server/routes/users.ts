@@ -18,7 +18,7 @@ export function limiter(limit: number, windowMs: number, message: string, key?: 
     standardHeaders: 'draft-8',
     legacyHeaders: false,
     keyGenerator: key ?? ((req) => ipKeyGenerator(req.ip ?? '')),
-    handler: (_req, res) => res.status(429).json({ error: { code: 'rate_limited', message } }),
+    handler: (_req, res) => res.status(429).json({ error: { code: 'rate_limited', message, details: null } }),
   });
 }
 

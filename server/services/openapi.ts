@@ -234,7 +234,7 @@ export function openApiDocument(): object {
         Error: {
           type: 'object',
           required: ['error'],
-          properties: { error: { type: 'object', required: ['code', 'message'], properties: { code: { type: 'string' }, message: { type: 'string' }, details: {} } } },
+          properties: { error: { type: 'object', required: ['code', 'message', 'details'], properties: { code: { type: 'string' }, message: { type: 'string' }, details: { description: 'null when there is nothing to add; for field problems a list of { path, message }' } } } },
         },
       },
     },

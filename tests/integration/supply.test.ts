@@ -79,7 +79,7 @@ describe('recording a site’s supply', () => {
     ['a meter that ran backwards', { kind: 'meter', meterStartL: 500, meterEndL: 400, minutes: 5 }, 'meterEndL'],
     ['a meter reading over 0 minutes', { kind: 'meter', meterStartL: 0, meterEndL: 400, minutes: 0 }, 'minutes'],
     ['an unknown kind of test', { kind: 'guess', flowLpm: 40 }, 'kind'],
-    ['a bucket test with meter fields', { kind: 'bucket', volumeL: 5, seconds: 10, minutes: 3 }, ''],
+    ['a bucket test with meter fields', { kind: 'bucket', volumeL: 5, seconds: 10, minutes: 3 }, 'minutes'],
     ['a pressure of 0 kPa', { kind: 'bucket', volumeL: 5, seconds: 10, staticPressureKPa: 0 }, 'staticPressureKPa'],
   ])('refuses %s with a 400 naming the field and writes nothing', async (_what, body, field) => {
     const before = await snapshot();

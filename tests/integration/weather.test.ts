@@ -94,7 +94,7 @@ describe('a day of weather typed into the form', () => {
     ['humidity above 100 %', { tmaxC: 20, tminC: 10, rhMaxPct: 104 }, 'rhMaxPct'],
     ['negative wind', { tmaxC: 20, tminC: 10, windMs: -1 }, 'windMs'],
     ['RHmin above RHmax', { tmaxC: 20, tminC: 10, rhMaxPct: 60, rhMinPct: 70 }, 'rhMinPct'],
-    ['an unknown field', { tmaxC: 20, tminC: 10, dewPointC: 5 }, ''],
+    ['an unknown field', { tmaxC: 20, tminC: 10, dewPointC: 5 }, 'dewPointC'],
     ['no Tmax', { tminC: 10 }, 'tmaxC'],
   ])('refuses %s with a 400 naming the field', async (_what, body, field) => {
     const before = await counts();
