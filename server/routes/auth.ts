@@ -5,7 +5,8 @@ import { signInSchema, updateMeSchema } from '../contracts/auth';
 import { users } from '../db/schema/index';
 import { actorOf, requireAuth } from '../middleware/auth';
 import { parse } from '../middleware/validate';
-import { meOf, verifySignIn } from '../services/auth';
+import { meOf, normaliseEmail, verifySignIn } from '../services/auth';
+import { errorBody } from '../errors';
 import { recordAudit } from '../services/audit';
 import type { AppDeps } from '../app';
 
@@ -17,9 +18,9 @@ export function authRoutes(deps: AppDeps): Router {
     limit: deps.config.LOGIN_RATE_LIMIT,
     standardHeaders: 'draft-8',
     legacyHeaders: false,
-    keyGenerator: (req) => `${ipKeyGenerator(req.ip ?? '')}|${String(req.body?.email ?? '').toLowerCase()}`,
-    handler: (_req, res) =>
-      res.status(429).json({ error: { code: 'rate_limited', message: 'Too many sign-in attempts. Wait a minute and try again.' } }),
+    // The e-mail as sign-in reads it, so " Admin@X " counts against the same limit as "admin@x".
+    keyGenerator: (req) => `${ipKeyGenerator(req.ip ?? '')}|${normaliseEmail(req.body?.email)}`,
+    handler: (_req, res) => res.status(429).json(errorBody('rate_limited', 'Too many sign-in attempts. Wait a minute and try again.')),
   });
 
   r.post('/sign-in', signInLimit, async (req, res) => {
