@@ -39,6 +39,8 @@ export const siteFields = {
   supplyFlowLpm: z.number().positive('Supply flow must be above 0').max(100_000),
   staticPressureKPa: z.number().positive().max(2_000),
   supplyMarginPct: z.number().min(0).max(90),
+  /** Within a few km of a large body of water: kRs 0.19 instead of 0.16 in FAO-56 Eq. 50. */
+  coastal: z.boolean(),
   restrictions: restrictionsSchema,
   allowParallel: z.boolean(),
   rainDelayHours: z.number().min(0, 'Hours cannot be negative').max(240),
@@ -50,6 +52,7 @@ export const createSiteSchema = z.strictObject({
   address: siteFields.address.default(''),
   elevationM: siteFields.elevationM.default(0),
   supplyMarginPct: siteFields.supplyMarginPct.default(20),
+  coastal: siteFields.coastal.default(false),
   restrictions: siteFields.restrictions.default({ dayRule: 'any', weekdays: [], noWateringWindows: [] }),
   allowParallel: siteFields.allowParallel.default(false),
   rainDelayHours: siteFields.rainDelayHours.default(24),

@@ -5,7 +5,7 @@
 import { and, asc, eq, gte, isNull, lte } from 'drizzle-orm';
 import type { Db } from '../db/client';
 import { controllers, weatherDays, zones } from '../db/schema/index';
-import { groupHeadsSchema, planningQuery } from '../contracts/supply';
+import { groupHeadsSchema, planningQuery, type PlanningQuery } from '../contracts/supply';
 import { wateringNeedQuery } from '../contracts/weather';
 import { parse } from '../middleware/validate';
 import { AppError } from '../errors';
@@ -20,6 +20,7 @@ import {
   usableSupply,
   zoneFlow,
   zoneWarnings,
+  type HeadType,
 } from '../domain/hydraulics';
 import { soilProperties, soilWaterBalance, totalAvailableWater, wateringNeed } from '../domain/agronomy';
 import type { Actor } from './actor';
@@ -40,11 +41,34 @@ async function siteZones(db: Db, siteId: number) {
     .orderBy(asc(controllers.name), asc(zones.controllerId), asc(zones.relay));
 }
 
+/** Pipe inputs of the domain library → the planning query's names. */
+const PIPE_FIELD: Record<string, string> = { innerDiameterMm: 'pipeMm', lengthM: 'pipeLengthM', c: 'c' };
+
+/** Head types on a zone: its own, and another found on the same valve. */
+const zoneHeadTypes = (z: { headType: HeadType; otherHeadType: HeadType | null }): HeadType[] =>
+  z.otherHeadType ? [z.headType, z.otherHeadType] : [z.headType];
+
 export async function sitePlanning(ctx: Ctx, siteId: number, rawQuery: unknown) {
   const site = await loadVisibleSite(ctx, siteId);
   const pipe = parse(planningQuery, rawQuery);
-  const usable = usableSupply(site.supplyFlowLpm, site.supplyMarginPct);
   const rows = await siteZones(ctx.db, siteId);
+  try {
+    return planZones(site, pipe, rows);
+  } catch (e) {
+    // A pipe too extreme to compute with (say a bore of 1e-300 mm) is the query's fault.
+    if (e instanceof DomainInputError) {
+      throw new AppError(400, 'validation_failed', 'Some fields are not valid', [{ path: PIPE_FIELD[e.field] ?? e.field, message: e.message }]);
+    }
+    throw e;
+  }
+}
+
+function planZones(
+  site: Awaited<ReturnType<typeof loadVisibleSite>>,
+  pipe: PlanningQuery,
+  rows: Awaited<ReturnType<typeof siteZones>>,
+) {
+  const usable = usableSupply(site.supplyFlowLpm, site.supplyMarginPct);
   return {
     site: {
       id: site.id,
@@ -66,6 +90,7 @@ export async function sitePlanning(ctx: Ctx, siteId: number, rawQuery: unknown) 
         controllerName,
         relay: z.relay,
         headType: z.headType,
+        otherHeadType: z.otherHeadType,
         headCount: z.headCount,
         flowPerHeadLpm: z.flowPerHeadLpm,
         areaM2: z.areaM2,
@@ -79,7 +104,7 @@ export async function sitePlanning(ctx: Ctx, siteId: number, rawQuery: unknown) 
         frictionLossKPa: round(headLossKPa(lossM), 2),
         warnings: zoneWarnings({
           flowLpm: flow,
-          headTypes: [z.headType],
+          headTypes: zoneHeadTypes(z),
           supplyLpm: site.supplyFlowLpm,
           marginPct: site.supplyMarginPct,
           innerDiameterMm: pipe.pipeMm,
@@ -155,6 +180,7 @@ export async function wateringNeedForSite(ctx: Ctx, siteId: number, rawQuery: un
       plantType: z.plantType,
       soilTexture: z.soilTexture,
       headType: z.headType,
+      otherHeadType: z.otherHeadType,
       precipitationRateMmH: round(pr, 2),
       efficiency: z.efficiency,
       intakeRateMmH: soilProperties(z.soilTexture).intakeRateMmH,

@@ -53,11 +53,12 @@ const un = (v: number | null) => (v === null ? undefined : v);
 
 /**
  * ET₀ of a day at a site (FAO-56 Penman–Monteith via referenceEt0Details, with FAO-56's
- * fallbacks for missing humidity, radiation and wind). et0Method records the data path:
- * "<humidity>/<radiation>/<wind>", e.g. "rh_max_min/sunshine/wind_measured" or
+ * fallbacks for missing humidity, radiation and wind). A coastal site estimates radiation
+ * from the temperature range with kRs 0.19 instead of 0.16 (Eq. 50). et0Method records the
+ * data path: "<humidity>/<radiation>/<wind>", e.g. "rh_max_min/sunshine/wind_measured" or
  * "tmin/temperature_range/wind_assumed". Throws DomainInputError for impossible data.
  */
-export function computeEt0(site: Pick<Site, 'latitude' | 'elevationM'>, date: string, v: WeatherValues): Et0Result {
+export function computeEt0(site: Pick<Site, 'latitude' | 'elevationM' | 'coastal'>, date: string, v: WeatherValues): Et0Result {
   const d = referenceEt0Details({
     tmaxC: v.tmaxC,
     tminC: v.tminC,
@@ -70,6 +71,7 @@ export function computeEt0(site: Pick<Site, 'latitude' | 'elevationM'>, date: st
     latitudeDeg: site.latitude,
     elevationM: site.elevationM,
     dayOfYear: dayOfYear(date),
+    coastal: site.coastal,
   });
   return { et0Mm: d.et0, et0Method: `${d.humiditySource}/${d.radiationSource}/${d.windAssumed ? 'wind_assumed' : 'wind_measured'}` };
 }

@@ -90,6 +90,10 @@ export async function updateZone(ctx: Ctx, id: number, raw: unknown) {
     const extra = Object.keys(input).filter((k) => !(technicianZoneFields as readonly string[]).includes(k));
     if (extra.length) throw forbidden(`A technician may change only ${technicianZoneFields.join(', ')}`);
   }
+  const otherHeadType = input.otherHeadType === undefined ? before.zone.otherHeadType : input.otherHeadType;
+  if (otherHeadType !== null && otherHeadType === (input.headType ?? before.zone.headType)) {
+    throw fieldError('otherHeadType', 'The other head type must differ from the head type');
+  }
   let controller = before.controller;
   if (input.controllerId !== undefined && input.controllerId !== controller.id) {
     controller = await loadVisibleController(ctx, input.controllerId).catch(() => {

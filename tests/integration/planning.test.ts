@@ -22,6 +22,7 @@ let app: Express;
 let f: Fixture;
 let manager: Agent;
 let owner: Agent;
+let technician: Agent;
 
 // Fixture site A: supply 60 L/min, margin 20 % → 48 L/min usable.
 // Zone A1 (fixture): 6 sprays × 5 L/min over 100 m², loam, cool-season turf, roots 0.15 m, efficiency 0.7.
@@ -46,6 +47,7 @@ beforeAll(async () => {
   app = buildTestApp(tdb).app;
   manager = await signedIn(app, f.users.manager.email);
   owner = await signedIn(app, f.users.owner.email);
+  technician = await signedIn(app, f.users.technician.email);
 });
 afterAll(async () => {
   await tdb.drop();
@@ -69,7 +71,9 @@ describe('zone planning against the supply and a pipe', () => {
       expect(got.frictionLossM).toBeCloseTo(loss, 3);
       expect(got.frictionLossKPa).toBeCloseTo(headLossKPa(loss), 2);
       expect(got.warnings).toEqual(
-        zoneWarnings({ flowLpm: flow, headTypes: [z.headType], supplyLpm: 60, marginPct: 20, innerDiameterMm: 25 }),
+        zoneWarnings({
+          flowLpm: flow, headTypes: z.otherHeadType ? [z.headType, z.otherHeadType] : [z.headType], supplyLpm: 60, marginPct: 20, innerDiameterMm: 25,
+        }),
       );
     }
   });
@@ -95,6 +99,13 @@ describe('zone planning against the supply and a pipe', () => {
 
   it('refuses a pipe of 0 mm with a 400 naming pipeMm', async () => {
     const res = await manager.get(`/api/sites/${f.siteA}/planning?pipeMm=0`);
+    expect(res.status).toBe(400);
+    expect(res.body.error.details.map((d: { path: string }) => d.path)).toEqual(['pipeMm']);
+  });
+
+  it('refuses a bore too small to compute a friction loss for with a 400 naming pipeMm', async () => {
+    // 30 L/min through 1e-300 mm: the loss would be infinite
+    const res = await manager.get(`/api/sites/${f.siteA}/planning?pipeMm=1e-300`);
     expect(res.status).toBe(400);
     expect(res.body.error.details.map((d: { path: string }) => d.path)).toEqual(['pipeMm']);
   });
@@ -201,5 +212,72 @@ describe('watering need from stored weather', () => {
     expect((await owner.get(`/api/sites/${f.siteA}/watering-need?days=61`)).status).toBe(400);
     expect((await owner.get(`/api/sites/${f.siteB}/watering-need`)).status).toBe(404);
     expect((await owner.get(`/api/sites/${f.siteB}/planning`)).status).toBe(404);
+  });
+});
+
+describe('another head type found on a zone', () => {
+  // Two rotor zones on relays 4 and 5 of the fixture board: 4 rotors × 10 L/min over 400 m².
+  const rotorZone = (relay: number, name: string) => ({
+    controllerId: f.controllerA, relay, name, plantType: 'cool_season_turf', soilTexture: 'loam',
+    headType: 'rotor', headCount: 4, flowPerHeadLpm: 10, areaM2: 400, rootDepthM: 0.15,
+  });
+  let mixedId: number;
+  let rotorsId: number;
+
+  beforeAll(async () => {
+    const mixed = await manager.post('/api/zones').send({ ...rotorZone(4, 'Survey rotors'), otherHeadType: 'spray' });
+    expect(mixed.status).toBe(201);
+    expect(mixed.body.otherHeadType).toBe('spray');
+    mixedId = mixed.body.id;
+    const rotors = await manager.post('/api/zones').send(rotorZone(5, 'Rotors only'));
+    expect(rotors.status).toBe(201);
+    expect(rotors.body.otherHeadType).toBeNull();
+    rotorsId = rotors.body.id;
+  });
+
+  it('warns about sprays mixed with rotors on the zone that has both, and not on the rotors-only zone', async () => {
+    // common practice (design.md): sprays and rotors differ by an order of magnitude in
+    // precipitation rate, so zones never mix them
+    const res = await owner.get(`/api/sites/${f.siteA}/planning?pipeMm=50`);
+    expect(res.status).toBe(200);
+    const mixed = res.body.zones.find((z: { id: number }) => z.id === mixedId);
+    const rotors = res.body.zones.find((z: { id: number }) => z.id === rotorsId);
+    expect(mixed).toMatchObject({ headType: 'rotor', otherHeadType: 'spray' });
+    expect(mixed.warnings.map((w: { code: string }) => w.code)).toEqual(['mixed_spray_rotor']);
+    expect(mixed.warnings).toEqual(zoneWarnings({ flowLpm: 40, headTypes: ['rotor', 'spray'] }));
+    // 40 L/min within 48 usable and 0.34 m/s in 50 mm: nothing else to say
+    expect(rotors).toMatchObject({ headType: 'rotor', otherHeadType: null, warnings: [] });
+  });
+
+  it('warns about other mixes apart from sprays with rotors, and stops once the other type is cleared', async () => {
+    const drip = await technician.patch(`/api/zones/${rotorsId}`).send({ otherHeadType: 'bubbler' });
+    expect(drip.status).toBe(200);
+    let res = await owner.get(`/api/sites/${f.siteA}/planning?pipeMm=50`);
+    let z = res.body.zones.find((x: { id: number }) => x.id === rotorsId);
+    expect(z.warnings.map((w: { code: string }) => w.code)).toEqual(['mixed_head_types']);
+    expect((await technician.patch(`/api/zones/${rotorsId}`).send({ otherHeadType: null })).status).toBe(200);
+    res = await owner.get(`/api/sites/${f.siteA}/planning?pipeMm=50`);
+    z = res.body.zones.find((x: { id: number }) => x.id === rotorsId);
+    expect(z.warnings).toEqual([]);
+  });
+
+  it('refuses another head type equal to the zone\'s own, or unknown, naming otherHeadType, and changes nothing', async () => {
+    const same = await manager.post('/api/zones').send({ ...rotorZone(6, 'Same twice'), otherHeadType: 'rotor' });
+    expect(same.status).toBe(400);
+    expect(same.body.error.details.map((d: { path: string }) => d.path)).toEqual(['otherHeadType']);
+    const unknown = await manager.patch(`/api/zones/${mixedId}`).send({ otherHeadType: 'mist' });
+    expect(unknown.status).toBe(400);
+    expect(unknown.body.error.details.map((d: { path: string }) => d.path)).toEqual(['otherHeadType']);
+    const both = await manager.patch(`/api/zones/${mixedId}`).send({ headType: 'spray', otherHeadType: 'spray' });
+    expect(both.status).toBe(400);
+    // against the stored head type: rotor zone, "other" rotor; or the head type turned into the other one
+    for (const body of [{ otherHeadType: 'rotor' }, { headType: 'spray' }]) {
+      const stored = await manager.patch(`/api/zones/${mixedId}`).send(body);
+      expect(stored.status).toBe(400);
+      expect(stored.body.error.details.map((d: { path: string }) => d.path)).toEqual(['otherHeadType']);
+    }
+    const [row] = (await tdb.db.select().from(zones)).filter((x) => x.id === mixedId);
+    expect(row).toMatchObject({ headType: 'rotor', otherHeadType: 'spray' });
+    expect((await owner.patch(`/api/zones/${mixedId}`).send({ otherHeadType: null })).status).toBe(403);
   });
 });

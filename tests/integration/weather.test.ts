@@ -315,3 +315,63 @@ describe('who may read and write weather', () => {
     expect((await as.technician.post(`/api/sites/${f.siteB}/weather/import`).attach('file', csv('date,tmax_c,tmin_c', '2025-01-01,5,1'), 'a.csv')).status).toBe(404);
   });
 });
+
+describe('a coastal site', () => {
+  // An invented harbour site, a few hundred metres from the sea.
+  const HARBOUR = { latitude: 43.3, longitude: -8.4, elevationM: 25 };
+  const place = { latitudeDeg: HARBOUR.latitude, elevationM: HARBOUR.elevationM };
+  let harbourId: number;
+
+  beforeAll(async () => {
+    const res = await as.admin.post('/api/sites').send({
+      name: 'Harbour walk gardens', timezone: 'Europe/Madrid', ...HARBOUR, supplyFlowLpm: 80, staticPressureKPa: 400, coastal: true,
+    });
+    expect(res.status).toBe(201);
+    expect(res.body.coastal).toBe(true);
+    harbourId = res.body.id;
+  });
+
+  it('is inland unless said otherwise, and the flag can be changed and read back', async () => {
+    expect((await as.admin.get(`/api/sites/${f.siteA}`)).body.coastal).toBe(false);
+    const bad = await as.admin.patch(`/api/sites/${harbourId}`).send({ coastal: 'yes' });
+    expect(bad.status).toBe(400);
+    expect(bad.body.error.details.map((d: { path: string }) => d.path)).toEqual(['coastal']);
+    expect((await as.admin.get(`/api/sites/${harbourId}`)).body.coastal).toBe(true);
+  });
+
+  it('estimates radiation from the temperature range with kRs 0.19 (FAO-56 Eq. 50), so ET₀ differs from inland', async () => {
+    const day = { tmaxC: 27, tminC: 15 };
+    const res = await as.manager.put(`/api/sites/${harbourId}/weather/2025-07-15`).send(day);
+    expect(res.status).toBe(200);
+    expect(res.body.et0Fallbacks).toContain('radiation_from_temperature_range');
+    const doy = dayOfYear('2025-07-15');
+    const coastal = referenceEt0({ ...day, ...place, dayOfYear: doy, coastal: true });
+    const inland = referenceEt0({ ...day, ...place, dayOfYear: doy, coastal: false });
+    const [row] = (await storedDays(harbourId)).filter((d) => d.date === '2025-07-15');
+    expect(row.et0Mm).toBeCloseTo(coastal, 10);
+    // More radiation estimated near the sea (0.19 against 0.16 × √ΔT × Ra): a higher ET₀.
+    expect(coastal - inland).toBeGreaterThan(0.1);
+    expect(Math.abs(row.et0Mm - inland)).toBeGreaterThan(0.1);
+  });
+
+  it('uses the coastal coefficient for imported days too, and none where radiation is measured', async () => {
+    const file = csv('date,tmax_c,tmin_c,solar_mj', '2025-07-16,26,14,', '2025-07-17,26,14,24');
+    const res = await as.admin.post(`/api/sites/${harbourId}/weather/import`).attach('file', file, 'harbour.csv');
+    expect(res.status).toBe(200);
+    const days = (await storedDays(harbourId)).filter((d) => d.date >= '2025-07-16');
+    const base = { tmaxC: 26, tminC: 14, ...place };
+    expect(days[0].et0Mm).toBeCloseTo(referenceEt0({ ...base, dayOfYear: dayOfYear('2025-07-16'), coastal: true }), 10);
+    // Measured radiation: the coastal flag changes nothing.
+    const measured = { ...base, solarRadiationMJ: 24, dayOfYear: dayOfYear('2025-07-17') };
+    expect(days[1].et0Mm).toBeCloseTo(referenceEt0({ ...measured, coastal: false }), 10);
+    expect(referenceEt0({ ...measured, coastal: true })).toBe(referenceEt0({ ...measured, coastal: false }));
+  });
+
+  it('goes back to kRs 0.16 for days saved after the site is marked inland', async () => {
+    expect((await as.manager.patch(`/api/sites/${harbourId}`).send({ coastal: false })).status).toBe(200);
+    const res = await as.manager.put(`/api/sites/${harbourId}/weather/2025-07-18`).send({ tmaxC: 27, tminC: 15 });
+    expect(res.status).toBe(200);
+    const [row] = (await storedDays(harbourId)).filter((d) => d.date === '2025-07-18');
+    expect(row.et0Mm).toBeCloseTo(referenceEt0({ tmaxC: 27, tminC: 15, ...place, dayOfYear: dayOfYear('2025-07-18') }), 10);
+  });
+});

@@ -46,6 +46,8 @@ export const zones = pgTable(
     plantType: plantTypeEnum('plant_type').notNull(),
     soilTexture: soilTextureEnum('soil_texture').notNull(),
     headType: headTypeEnum('head_type').notNull(),
+    /** A second head type found on this valve (say a spray or two on a rotor zone); null = none. */
+    otherHeadType: headTypeEnum('other_head_type'),
     headCount: integer('head_count').notNull(),
     flowPerHeadLpm: doublePrecision('flow_per_head_lpm').notNull(),
     areaM2: doublePrecision('area_m2').notNull(),

@@ -22,6 +22,11 @@ export const sites = pgTable('sites', {
   supplyFlowLpm: doublePrecision('supply_flow_lpm').notNull(),
   staticPressureKPa: doublePrecision('static_pressure_kpa').notNull(),
   supplyMarginPct: doublePrecision('supply_margin_pct').notNull().default(20),
+  /**
+   * Within a few km of a large body of water (sea, large lake). Where a day's radiation is
+   * estimated from its temperature range, FAO-56 Eq. 50 then uses kRs 0.19 instead of 0.16.
+   */
+  coastal: boolean('coastal').notNull().default(false),
   restrictions: jsonb('restrictions')
     .$type<WateringRestrictions>()
     .notNull()
