@@ -93,8 +93,19 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
     started.add(z);
     void fetch(`${url}/api/zones/${z}/start`, { method: 'POST', headers: { 'content-type': 'application/json', cookie, origin: url }, body: JSON.stringify({ minutes: 1 }) }).catch(() => {});
   }, 100);
+  // BENCH_VERBOSE=1: each second, the rows stored and the server's resident memory
+  const rssNow = () => Math.round(Number(/VmRSS:\s+(\d+) kB/.exec(fs.readFileSync(`/proc/${server.pid}/status`, 'utf8'))?.[1]) / 1024);
+  let last = c0;
+  const verbose = process.env.BENCH_VERBOSE
+    ? setInterval(async () => {
+        const c = await count();
+        console.log(`  +${Math.round((Date.now() - t0) / 1000)} s: ${c - last} rows, server RSS ${rssNow()} MB, valve events ${latencies.length}`);
+        last = c;
+      }, 1000)
+    : null;
   await sleep(windowMs);
   clearInterval(valveTimer);
+  if (verbose) clearInterval(verbose);
   const c1 = await count();
   const t1 = Date.now();
   measuring = false;

@@ -50,7 +50,7 @@ export async function startWatch(d: WatchDeps): Promise<WatchParts> {
   const log = d.log.child({ part: 'watch' });
   const rollups = new RollupKeeper({ db, bus, clock, log });
   rollups.start();
-  const readingsRollup = new ReadingsRollup({ db, bus, clock, log });
+  const readingsRollup = new ReadingsRollup({ db, clock, log });
   readingsRollup.start();
 
   let fakeSmtp: FakeSmtp | null = null;

@@ -2,7 +2,6 @@ import { sql } from 'drizzle-orm';
 import type { Logger } from 'pino';
 import type { Clock } from '../clock';
 import type { Db } from '../db/client';
-import type { LiveBus } from '../live/bus';
 import { ms } from './sql';
 
 export const HOUR_MS = 3_600_000;
@@ -16,6 +15,9 @@ export async function recomputeHours(db: Db, controllerId: number | null, fromMs
   const to = new Date(hourOf(toMs - 1) + HOUR_MS);
   const who = controllerId === null ? sql`true` : sql`controller_id = ${controllerId}`;
   await db.transaction(async (tx) => {
+    // The reading writer merges each batch's hourly sums after updating the board's row, in one
+    // transaction: holding that row first, a recompute never overwrites sums it did not see.
+    await tx.execute(sql`select id from controllers where ${controllerId === null ? sql`true` : sql`id = ${controllerId}`} order by id for no key update`);
     await tx.execute(sql`delete from readings_hourly where ${who} and hour >= ${from} and hour < ${to}`);
     await tx.execute(sql`insert into readings_hourly (controller_id, hour, n, moisture_sum, moisture_min, moisture_max,
         supply_sum, supply_min, supply_max, flow_n, flow_sum, flow_min, flow_max, updated_at)
@@ -30,64 +32,17 @@ export async function recomputeHours(db: Db, controllerId: number | null, fromMs
 }
 
 /**
- * Keeps readings_hourly current. Every telemetry message is a 'reading' event (its last sample's
- * time); the hours those touch — and the hour before, for a message that spans an hour boundary
- * or a board replaying its offline buffer — are marked and recomputed on a short real-time
- * timer. On start it fills in, per controller, the hours since its last hourly row.
+ * Fills readings_hourly in for readings that did not come through the reading writer (which
+ * merges each batch's hourly sums in the batch's own transaction): on start, per controller, the
+ * hours since its last hourly row are recomputed from the readings.
  */
 export class ReadingsRollup {
-  private dirty = new Map<number, Set<number>>();
-  private timer: NodeJS.Timeout | null = null;
-  private unsubscribe: (() => void) | null = null;
   private work: Promise<unknown> = Promise.resolve();
-  private busy = false;
 
-  constructor(private d: { db: Db; bus: LiveBus; clock: Clock; log: Logger; flushMs?: number }) {}
+  constructor(private d: { db: Db; clock: Clock; log: Logger }) {}
 
   start(): void {
-    this.unsubscribe = this.d.bus.subscribe((e) => {
-      if (e.type !== 'reading' || typeof e.at !== 'string') return;
-      const h = hourOf(Date.parse(e.at));
-      const set = this.dirty.get(e.controllerId as number) ?? new Set<number>();
-      set.add(h).add(h - HOUR_MS);
-      this.dirty.set(e.controllerId as number, set);
-    });
-    this.timer = setInterval(() => {
-      if (!this.busy) void this.flush();
-    }, this.d.flushMs ?? 30_000);
-    this.timer.unref();
-    this.serial(() => this.catchUp());
-  }
-
-  private serial(job: () => Promise<void>): Promise<void> {
-    const next = this.work.then(job).catch((err) => this.d.log.warn({ err }, 'readings rollup failed'));
-    this.work = next;
-    return next;
-  }
-
-  /** Recompute every hour marked since the last flush (tests call this). */
-  flush(): Promise<void> {
-    this.busy = true;
-    return this.serial(async () => {
-      const batch = this.dirty;
-      this.dirty = new Map();
-      for (const [controllerId, hours] of batch) {
-        // contiguous runs of hours, one statement each
-        const sorted = [...hours].sort((a, b) => a - b);
-        let start = sorted[0];
-        let prev = sorted[0];
-        for (const h of [...sorted.slice(1), Infinity]) {
-          if (h === prev + HOUR_MS) {
-            prev = h;
-            continue;
-          }
-          await recomputeHours(this.d.db, controllerId, start, prev + HOUR_MS);
-          start = prev = h;
-        }
-      }
-    }).finally(() => {
-      this.busy = false;
-    });
+    this.work = this.catchUp().catch((err) => this.d.log.warn({ err }, 'readings rollup catch-up failed'));
   }
 
   /** Fill in each controller's hours from its last hourly row (or its first reading) to now. */
@@ -111,8 +66,6 @@ export class ReadingsRollup {
   }
 
   async stop(): Promise<void> {
-    this.unsubscribe?.();
-    if (this.timer) clearInterval(this.timer);
-    await this.flush();
+    await this.work;
   }
 }

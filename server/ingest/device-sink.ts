@@ -10,7 +10,7 @@ import type { Db } from '../db/client';
 import { controllers, valveEvents } from '../db/schema/index';
 import type { BoardLive, Fleet } from '../fleet/fleet';
 import type { LiveBus } from '../live/bus';
-import { copyLine, type ReadingWriter } from './reading-writer';
+import { addToHour, copyLine, type HourSums, type ReadingWriter } from './reading-writer';
 
 /** A board's clock within this of the server's is trusted as it is. */
 const CLOCK_TOLERANCE_MS = 120_000;
@@ -194,17 +194,19 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       const recvIso = receivedAt.toISOString();
       let text = '';
       let lastAtMs = 0;
+      const hours: HourSums[] = [];
       for (const x of samples) {
         const boardMs = Date.parse(x.at);
         const atMs = Math.min(boardMs + b.clockOffsetMs, recvMs);
         // A trusted board time is stored as the board wrote it (the protocol checked it).
         text += copyLine(b.controllerId, atMs === boardMs ? x.at : new Date(atMs).toISOString(), x.at, recvIso, seq, x);
+        addToHour(hours, atMs, x);
         lastAtMs = atMs;
       }
       const last = samples[samples.length - 1];
       const n = samples.length;
       samples = []; // (let the message go while the commit is awaited; only its newest sample is needed)
-      await writer.writeText(b.controllerId, seq, text, n);
+      await writer.writeText(b.controllerId, seq, text, n, hours);
       b.lastSeenAt = recvMs;
       if (!b.online) await setOnline(b, true, receivedAt);
       // Shared ingest can hand an older message over after a newer one: it is stored, but the

@@ -15,8 +15,58 @@ export type ReadingValues = {
   rssi: number;
 };
 
+/**
+ * A board message's readings summed per UTC hour (usually one), for readings_hourly. Values are
+ * rounded to the table's `real` first, so the sums are those of what is stored.
+ */
+export type HourSums = {
+  hour: number; n: number;
+  mSum: number; mMin: number; mMax: number;
+  sSum: number; sMin: number; sMax: number;
+  /** Readings that carried a flow value; the flow sums are 0 / ±Infinity until one does. */
+  fN: number; fSum: number; fMin: number; fMax: number;
+};
+
+const HOUR_MS = 3_600_000;
+
+/** Add one reading taken at `atMs` to its hour in `hours` (a message's list, or a batch's). */
+export function addToHour(hours: HourSums[], atMs: number, s: Pick<ReadingValues, 'moisturePct' | 'supplyV' | 'flowLpm'>): void {
+  const hour = Math.floor(atMs / HOUR_MS) * HOUR_MS;
+  let h = hours.find((x) => x.hour === hour);
+  if (!h) {
+    h = { hour, n: 0, mSum: 0, mMin: Infinity, mMax: -Infinity, sSum: 0, sMin: Infinity, sMax: -Infinity, fN: 0, fSum: 0, fMin: Infinity, fMax: -Infinity };
+    hours.push(h);
+  }
+  const m = Math.fround(s.moisturePct);
+  const v = Math.fround(s.supplyV);
+  h.n++;
+  h.mSum += m;
+  h.mMin = Math.min(h.mMin, m);
+  h.mMax = Math.max(h.mMax, m);
+  h.sSum += v;
+  h.sMin = Math.min(h.sMin, v);
+  h.sMax = Math.max(h.sMax, v);
+  if (s.flowLpm !== null) {
+    const f = Math.fround(s.flowLpm);
+    h.fN++;
+    h.fSum += f;
+    h.fMin = Math.min(h.fMin, f);
+    h.fMax = Math.max(h.fMax, f);
+  }
+}
+
+/** Merging new readings into an hour of readings_hourly (`h` is the stored row, `excluded` the new sums). */
+export const HOURLY_MERGE = `on conflict (controller_id, hour) do update set n = h.n + excluded.n,
+  moisture_sum = h.moisture_sum + excluded.moisture_sum, moisture_min = least(h.moisture_min, excluded.moisture_min), moisture_max = greatest(h.moisture_max, excluded.moisture_max),
+  supply_sum = h.supply_sum + excluded.supply_sum, supply_min = least(h.supply_min, excluded.supply_min), supply_max = greatest(h.supply_max, excluded.supply_max),
+  flow_n = h.flow_n + excluded.flow_n,
+  flow_sum = case when excluded.flow_n = 0 then h.flow_sum when h.flow_n = 0 then excluded.flow_sum else h.flow_sum + excluded.flow_sum end,
+  flow_min = least(h.flow_min, excluded.flow_min), flow_max = greatest(h.flow_max, excluded.flow_max), updated_at = now()`;
+
+const HOURLY_COLUMNS = '(controller_id, hour, n, moisture_sum, moisture_min, moisture_max, supply_sum, supply_min, supply_max, flow_n, flow_sum, flow_min, flow_max, updated_at)';
+
 /** One board message waiting for its batch: its rows already as COPY text, so a waiting message holds one string, not objects. */
-type Pending = { text: string; n: number; controllerId: number; seq: number; resolve: () => void; reject: (e: Error) => void };
+type Pending = { text: string; n: number; controllerId: number; seq: number; hours: HourSums[]; resolve: () => void; reject: (e: Error) => void };
 
 export type WriterStats = {
   rowsWritten: number;
@@ -38,7 +88,8 @@ export function copyLine(controllerId: number, at: string, boardAt: string, rece
 /**
  * Writes readings with COPY in batches, flushed by size and by time. Each batch commits
  * together with the boards' highest stored sequence numbers, so a restart resumes
- * de-duplication exactly where the database is. A failed batch is kept and retried; when the
+ * de-duplication exactly where the database is, and with its readings' hourly sums merged into
+ * readings_hourly, so the rollup never misses or double-counts a stored reading. A failed batch is kept and retried; when the
  * buffer is full, new work is refused (the board keeps it and resends later).
  */
 export class ReadingWriter {
@@ -69,8 +120,11 @@ export class ReadingWriter {
     },
   ) {}
 
-  /** Queue one board message's rows, as COPY text (one line each, from `copyLine`); resolves once they are committed. */
-  writeText(controllerId: number, seq: number, text: string, n: number): Promise<void> {
+  /**
+   * Queue one board message's rows, as COPY text (one line each, from `copyLine`), with their
+   * hourly sums (`addToHour`); resolves once they are committed.
+   */
+  writeText(controllerId: number, seq: number, text: string, n: number, hours: HourSums[]): Promise<void> {
     if (this.closed) return Promise.reject(new Error('writer closed'));
     if (this.stats.buffered + n > this.opts.maxBufferedRows) {
       this.stats.refused += n;
@@ -78,7 +132,7 @@ export class ReadingWriter {
       return Promise.reject(new Error('reading buffer full'));
     }
     return new Promise((resolve, reject) => {
-      this.queue.push({ text, n, controllerId, seq, resolve, reject });
+      this.queue.push({ text, n, controllerId, seq, hours, resolve, reject });
       this.stats.buffered += n;
       this.stats.maxBuffered = Math.max(this.stats.maxBuffered, this.stats.buffered);
       if (this.stats.buffered >= this.opts.batchRows || (this.opts.flushAtMessages && this.queue.length >= this.opts.flushAtMessages)) void this.flush();
@@ -154,9 +208,21 @@ export class ReadingWriter {
         todo = batch.filter((p) => p.seq > (last.get(p.controllerId) ?? 0));
       }
       const lines = todo.map((p) => p.text);
+      const maxSeq = new Map<number, number>();
+      for (const p of todo) maxSeq.set(p.controllerId, Math.max(maxSeq.get(p.controllerId) ?? 0, p.seq));
+      // The board's stored sequence number first (the lock order every writer of readings_hourly
+      // keeps: controller row, then hourly rows). Ids and sequence numbers are integers the gateway
+      // checked, so they are written into the statement as such.
+      const ids = [...maxSeq.keys()];
+      const seqUpdate = ids.length
+        ? `update controllers c set last_seq = greatest(c.last_seq, v.seq), last_seen_at = now()
+             from unnest('{${ids.map(int).join(',')}}'::int[], '{${ids.map((i) => int(maxSeq.get(i)!)).join(',')}}'::bigint[]) as v(id, seq)
+             where c.id = v.id`
+        : null;
       if (lines.length && this.opts.shared) {
         // Several instances share the ingest: a message redelivered to another instance after a
-        // crash may already be stored, so rows go through a staging table and only new ones land.
+        // crash may already be stored, so rows go through a staging table and only new ones land
+        // (and only those are summed into their hours).
         if (!this.staged.has(client)) {
           await client.query('create temp table if not exists readings_in (like readings) on commit delete rows');
           created = true;
@@ -165,30 +231,30 @@ export class ReadingWriter {
           copyFrom('copy readings_in (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin'),
         );
         await pipeline(Readable.from(chunk(lines)), stream);
-        await client.query(
-          `insert into readings select distinct on (r.controller_id, r.at, r.seq, r.board_at) r.* from readings_in r where not exists
-             (select 1 from readings x where x.controller_id = r.controller_id and x.at = r.at and x.seq = r.seq and x.board_at = r.board_at)`,
-        );
-      } else if (lines.length) {
-        const stream = client.query(
-          copyFrom(
-            'copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin',
-          ),
-        );
-        await pipeline(Readable.from(chunk(lines)), stream);
+        await client.query(`${seqUpdate ?? ''};
+          with ins as (
+            insert into readings select distinct on (r.controller_id, r.at, r.seq, r.board_at) r.* from readings_in r where not exists
+              (select 1 from readings x where x.controller_id = r.controller_id and x.at = r.at and x.seq = r.seq and x.board_at = r.board_at)
+            returning controller_id, at, moisture_pct, supply_v, flow_lpm)
+          insert into readings_hourly as h ${HOURLY_COLUMNS}
+            select controller_id, date_trunc('hour', at, 'UTC'), count(*)::int, sum(moisture_pct::float8), min(moisture_pct), max(moisture_pct),
+              sum(supply_v::float8), min(supply_v), max(supply_v), count(flow_lpm)::int, sum(flow_lpm::float8), min(flow_lpm), max(flow_lpm), now()
+            from ins group by 1, 2
+          ${HOURLY_MERGE};
+          commit`);
+      } else {
+        if (lines.length) {
+          const stream = client.query(
+            copyFrom(
+              'copy readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) from stdin',
+            ),
+          );
+          await pipeline(Readable.from(chunk(lines)), stream);
+        }
+        // The sequence numbers, the hourly sums and the commit in one round trip.
+        const hourly = hourlyValues(todo);
+        await client.query([seqUpdate, hourly && `insert into readings_hourly as h ${HOURLY_COLUMNS} values ${hourly} ${HOURLY_MERGE}`, 'commit'].filter(Boolean).join(';\n'));
       }
-      const maxSeq = new Map<number, number>();
-      for (const p of todo) maxSeq.set(p.controllerId, Math.max(maxSeq.get(p.controllerId) ?? 0, p.seq));
-      // The board's stored sequence number and the commit in one round trip. Ids and sequence
-      // numbers are integers the gateway checked, so they are written into the statement as such.
-      const ids = [...maxSeq.keys()];
-      await client.query(
-        ids.length
-          ? `update controllers c set last_seq = greatest(c.last_seq, v.seq), last_seen_at = now()
-               from unnest('{${ids.map(int).join(',')}}'::int[], '{${ids.map((i) => int(maxSeq.get(i)!)).join(',')}}'::bigint[]) as v(id, seq)
-               where c.id = v.id; commit`
-          : 'commit',
-      );
       // (kept only once committed: a rolled-back transaction takes the new table with it)
       if (created) this.staged.add(client);
     } catch (e) {
@@ -204,6 +270,48 @@ export class ReadingWriter {
     this.closed = true;
     await this.flush();
   }
+}
+
+/** A finite number as SQL text; anything else is a bug, never data (the protocol checked every value). */
+function num(n: number): string {
+  if (!Number.isFinite(n)) throw new Error(`not a finite number: ${n}`);
+  return String(n);
+}
+
+/** The batch's hourly sums, merged per board and hour, as SQL VALUES rows (null when there are none). */
+function hourlyValues(batch: Pending[]): string | null {
+  const per = new Map<number, HourSums[]>();
+  for (const p of batch) {
+    const into = per.get(p.controllerId) ?? [];
+    per.set(p.controllerId, into);
+    for (const h of p.hours) {
+      const t = into.find((x) => x.hour === h.hour);
+      if (!t) {
+        into.push({ ...h });
+        continue;
+      }
+      t.n += h.n;
+      t.mSum += h.mSum;
+      t.mMin = Math.min(t.mMin, h.mMin);
+      t.mMax = Math.max(t.mMax, h.mMax);
+      t.sSum += h.sSum;
+      t.sMin = Math.min(t.sMin, h.sMin);
+      t.sMax = Math.max(t.sMax, h.sMax);
+      t.fN += h.fN;
+      t.fSum += h.fSum;
+      t.fMin = Math.min(t.fMin, h.fMin);
+      t.fMax = Math.max(t.fMax, h.fMax);
+    }
+  }
+  const rows: string[] = [];
+  for (const [cid, hours] of per) {
+    for (const h of hours) {
+      if (!h.n) continue;
+      const flow = h.fN ? `${num(h.fSum)}, ${num(h.fMin)}, ${num(h.fMax)}` : 'null, null, null';
+      rows.push(`(${int(cid)}, '${new Date(h.hour).toISOString()}', ${int(h.n)}, ${num(h.mSum)}, ${num(h.mMin)}, ${num(h.mMax)}, ${num(h.sSum)}, ${num(h.sMin)}, ${num(h.sMax)}, ${int(h.fN)}, ${flow}, now())`);
+    }
+  }
+  return rows.length ? rows.join(',\n') : null;
 }
 
 /** An integer as SQL text; anything else is a bug, never data. */

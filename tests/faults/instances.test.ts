@@ -114,5 +114,10 @@ describe('two instances on one PostgreSQL and one Mosquitto broker', () => {
     expect(sent).toBeGreaterThan(100);
     expect(dups).toBe(0);
     expect(stored).toBe(sent);
+    // each instance merged the hourly sums of only the rows it inserted: every reading counted once
+    const hourly = await tdb.db.execute<{ n: string; m: number }>(sql`select coalesce(sum(n), 0) as n, coalesce(sum(moisture_sum), 0) as m from readings_hourly`);
+    const raw = await tdb.db.execute<{ m: number }>(sql`select coalesce(sum(moisture_pct::float8), 0) as m from readings`);
+    expect(Number(hourly.rows[0].n)).toBe(stored);
+    expect(hourly.rows[0].m).toBeCloseTo(raw.rows[0].m, 3);
   }, 60_000);
 });

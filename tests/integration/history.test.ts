@@ -8,7 +8,8 @@ import { plantCoefficient } from '../../server/domain/agronomy';
 import { LiveBus } from '../../server/live/bus';
 import { realClock } from '../../server/clock';
 import { RollupKeeper, rebuildRollups } from '../../server/history/rollup';
-import { ReadingsRollup, recomputeHours } from '../../server/history/readings-rollup';
+import { recomputeHours } from '../../server/history/readings-rollup';
+import { ReadingWriter, addToHour, copyLine, type HourSums } from '../../server/ingest/reading-writer';
 import { pino } from 'pino';
 import { createTestDb, type TestDb } from '../helpers/db';
 import { buildTestApp, signedIn } from '../helpers/api';
@@ -305,25 +306,39 @@ describe('the daily rollup', () => {
     await keeper.stop();
   });
 
-  it('keeps the hourly readings rollup current from the reading events, including a replayed hour', async () => {
-    const bus = new LiveBus();
-    const rr = new ReadingsRollup({ db: tdb.db, bus, clock: realClock, log: pino({ level: 'silent' }), flushMs: 3_600_000 });
-    rr.start();
-    await rr.idle();
-    await tdb.db.execute(sql`
-      insert into readings (controller_id, at, board_at, received_at, seq, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi) values
-      (${f.controllerB}, '2025-08-01T10:15:00Z', '2025-08-01T10:15:00Z', now(), 1, false, 2000, 30, 24, 2, -60),
-      (${f.controllerB}, '2025-08-01T10:45:00Z', '2025-08-01T10:45:00Z', now(), 2, false, 2000, 40, 25, null, -60),
-      (${f.controllerB}, '2025-08-01T11:05:00Z', '2025-08-01T11:05:00Z', now(), 3, false, 2000, 20, 23, 4, -60)`);
-    // one message whose last sample is at 11:05; it also covers the hour before
-    bus.publish({ type: 'reading', siteId: f.siteB, controllerId: f.controllerB, at: '2025-08-01T11:05:00.000Z', rain: false, moisturePct: 20, supplyV: 23, flowLpm: 4, rssi: -60 });
-    await rr.flush();
-    const r = await tdb.db.execute(sql`select to_char(hour at time zone 'UTC', 'HH24:MI') as h, n, moisture_sum, moisture_min, moisture_max, flow_n, flow_sum
-      from readings_hourly where controller_id = ${f.controllerB} order by hour`);
-    expect(r.rows).toEqual([
-      { h: '10:00', n: 2, moisture_sum: 70, moisture_min: 30, moisture_max: 40, flow_n: 1, flow_sum: 2 },
-      { h: '11:00', n: 1, moisture_sum: 20, moisture_min: 20, moisture_max: 20, flow_n: 1, flow_sum: 4 },
+  it('keeps the hourly readings rollup current in each batch of the reading writer, including a replayed hour', async () => {
+    const writer = new ReadingWriter(tdb.pool, pino({ level: 'silent' }), realClock, { batchRows: 100, flushMs: 10, maxBufferedRows: 1000 });
+    const message = (seq: number, readings: [string, number, number, number | null][]) => {
+      const hours: HourSums[] = [];
+      let text = '';
+      for (const [at, moisturePct, supplyV, flowLpm] of readings) {
+        const v = { rain: false, moistureRaw: 2000, moisturePct, supplyV, flowLpm, rssi: -60 };
+        text += copyLine(f.controllerB, at, at, new Date().toISOString(), seq, v);
+        addToHour(hours, Date.parse(at), v);
+      }
+      return writer.writeText(f.controllerB, seq, text, readings.length, hours);
+    };
+    const hourly = async () =>
+      (await tdb.db.execute(sql`select to_char(hour at time zone 'UTC', 'HH24:MI') as h, n, moisture_sum, moisture_min, moisture_max, supply_min, supply_max, flow_n, flow_sum, flow_max
+        from readings_hourly where controller_id = ${f.controllerB} and hour >= '2025-08-01' and hour < '2025-08-02' order by hour`)).rows;
+    // one message spanning an hour boundary, then a later one in its own batch
+    await message(1, [['2025-08-01T10:15:00.000Z', 30, 24, 2], ['2025-08-01T10:45:00.000Z', 40, 25, null], ['2025-08-01T11:05:00.000Z', 20, 23, 4]]);
+    expect(await hourly()).toEqual([
+      { h: '10:00', n: 2, moisture_sum: 70, moisture_min: 30, moisture_max: 40, supply_min: 24, supply_max: 25, flow_n: 1, flow_sum: 2, flow_max: 2 },
+      { h: '11:00', n: 1, moisture_sum: 20, moisture_min: 20, moisture_max: 20, supply_min: 23, supply_max: 23, flow_n: 1, flow_sum: 4, flow_max: 4 },
     ]);
-    await rr.stop();
+    await message(2, [['2025-08-01T11:35:00.000Z', 25, 22.5, 6]]);
+    // a board replaying its offline buffer: an older hour gets more readings, and one with no flow yet gets its first
+    await Promise.all([message(3, [['2025-08-01T09:50:00.000Z', 35, 24, null]]), message(4, [['2025-08-01T10:20:00.000Z', 50, 24.5, 1], ['2025-08-01T09:55:00.000Z', 10, 24, 3]])]);
+    expect(await hourly()).toEqual([
+      { h: '09:00', n: 2, moisture_sum: 45, moisture_min: 10, moisture_max: 35, supply_min: 24, supply_max: 24, flow_n: 1, flow_sum: 3, flow_max: 3 },
+      { h: '10:00', n: 3, moisture_sum: 120, moisture_min: 30, moisture_max: 50, supply_min: 24, supply_max: 25, flow_n: 2, flow_sum: 3, flow_max: 2 },
+      { h: '11:00', n: 2, moisture_sum: 45, moisture_min: 20, moisture_max: 25, supply_min: 22.5, supply_max: 23, flow_n: 2, flow_sum: 10, flow_max: 6 },
+    ]);
+    // what the batches merged is what a recompute from the stored readings gives
+    const merged = await hourly();
+    await recomputeHours(tdb.db, f.controllerB, Date.parse('2025-08-01T00:00:00Z'), Date.parse('2025-08-02T00:00:00Z'));
+    expect(await hourly()).toEqual(merged);
+    await writer.close();
   });
 });
