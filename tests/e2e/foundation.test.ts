@@ -1,26 +1,39 @@
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, afterEach, beforeAll, describe, expect, it } from 'vitest';
 import type { BrowserContext, Locator, Page } from 'playwright-core';
 import { startDemoRuntime, type TestRuntime } from '../helpers/runtime';
-import path from 'node:path';
-import { launchBrowser, screenshot, SCREENSHOT_DIR, watchForeignRequests } from '../helpers/browser';
+import { launchBrowser, screenshot, watchForeignRequests } from '../helpers/browser';
 import { DEMO_PASSWORD, demoSites } from '../../server/db/seed-demo';
+import { METRES_PER_FOOT, MM_PER_INCH } from '../../server/domain/units';
 
 /**
  * The client against the real server and a fresh demo database, in Debian's Chromium.
  * One browser for the file; each role signs in on a page of its own (cookies cleared between).
+ * After every test, whatever it did: no request and no WebSocket of its pages left 127.0.0.1.
  */
 const siteName = Object.fromEntries(demoSites.map((s) => [s.key, s.name])) as Record<string, string>;
 const allSites = demoSites.map((s) => s.name).sort();
 const DESKTOP = { width: 1280, height: 800 };
 const PHONE = { width: 390, height: 844 };
 
+type Browser = { context: BrowserContext; close: () => Promise<void> };
 let demo: TestRuntime;
-let browser: { context: BrowserContext; close: () => Promise<void> };
-const foreign: string[] = [];
+let browser: Browser;
+/** Requests and WebSockets of the running test's pages that went elsewhere than 127.0.0.1. */
+let foreign: string[] = [];
+/** Pages and extra browsers of the running test, closed after it. */
+const opened: { pages: Page[]; browsers: Browser[] } = { pages: [], browsers: [] };
 
 beforeAll(async () => {
   demo = await startDemoRuntime();
   browser = await launchBrowser();
+});
+
+afterEach(async () => {
+  for (const p of opened.pages.splice(0)) if (!p.isClosed()) await p.close();
+  for (const b of opened.browsers.splice(0)) await b.close();
+  const seen = foreign;
+  foreign = [];
+  expect(seen, 'requests or WebSockets that left 127.0.0.1').toEqual([]);
 });
 
 afterAll(async () => {
@@ -28,13 +41,21 @@ afterAll(async () => {
   await demo?.close();
 });
 
-async function newPage(): Promise<Page> {
-  await browser.context.clearCookies();
-  const page = await browser.context.newPage();
+/** A page of the file's browser (cookies cleared), or of `context` (a browser of its own). */
+async function newPage(context?: BrowserContext): Promise<Page> {
+  if (!context) await browser.context.clearCookies();
+  const page = await (context ?? browser.context).newPage();
   await page.setViewportSize(DESKTOP);
-  const seen = watchForeignRequests(page);
-  page.on('close', () => foreign.push(...seen));
+  watchForeignRequests(page, foreign);
+  opened.pages.push(page);
   return page;
+}
+
+/** A browser that has never seen this test run: no cookies, no local storage. */
+async function freshContext(): Promise<BrowserContext> {
+  const b = await launchBrowser();
+  opened.browsers.push(b);
+  return b.context;
 }
 
 async function signIn(page: Page, email: string): Promise<void> {
@@ -69,6 +90,32 @@ async function openZoneForm(page: Page, name: string): Promise<Locator> {
   return form;
 }
 
+/** A number field's value and the unit beside it (`input` is the field's <input>, which carries data-test). */
+async function numberShown(input: Locator): Promise<{ value: string; unit: string }> {
+  const field = input.locator('xpath=ancestor::*[contains(concat(" ", normalize-space(@class), " "), " q-field ")][1]');
+  return { value: await input.inputValue(), unit: (await field.locator('.q-field__suffix').innerText()).trim() };
+}
+
+/** A zone's area as its edit form shows it. */
+async function zoneArea(page: Page, name: string): Promise<{ value: string; unit: string }> {
+  const form = await openZoneForm(page, name);
+  const shown = await numberShown(form.locator('[data-test=zone-field-area]'));
+  await form.locator('[data-test=form-cancel]').click();
+  await form.waitFor({ state: 'detached' });
+  return shown;
+}
+
+/** The pipe's inside diameter on the planning page of a site. */
+async function pipeDiameter(page: Page, siteKey: string): Promise<{ value: string; unit: string }> {
+  await page.goto(`${demo.rt.url}/sites/${demo.seed.siteIds[siteKey]}/planning`);
+  const input = page.locator('[data-test=pipe-diameter]');
+  await input.waitFor();
+  return numberShown(input);
+}
+
+/** What an input shows for a value: four significant digits (src/composables/use-units.ts forInput). */
+const asInput = (v: number) => String(Number(v.toPrecision(4)));
+
 /** Let transitions and the ticking clock settle before a picture. */
 const settle = (page: Page) => page.waitForTimeout(400);
 
@@ -91,7 +138,12 @@ describe('the Runnel client', () => {
 
   it('lets an admin see every site, with the admin-only actions', async () => {
     const page = await newPage();
+    const sockets: string[] = [];
+    page.on('websocket', (ws) => sockets.push(ws.url()));
     await signIn(page, 'admin@runnel.test');
+    // The live socket is seen by the watch (and goes to 127.0.0.1, as everything must).
+    await expect.poll(() => sockets.length).toBeGreaterThan(0);
+    expect(sockets.every((u) => /^ws:\/\/127\.0\.0\.1:\d+\/ws$/.test(u)), sockets.join(' ')).toBe(true);
     expect(await visibleSites(page)).toEqual(allSites);
     await expect(page.locator('[data-test=add-site]').isVisible()).resolves.toBe(true);
     expect(await page.locator('[data-test=user-role]').innerText()).toBe('Admin');
@@ -134,7 +186,7 @@ describe('the Runnel client', () => {
     await form.locator('[data-test=zone-field-flow-per-head]').fill('-1');
     expect(await form.locator('[data-test=zone-field-flow-per-head-error]').innerText()).toBe('Flow per head must be above 0');
     await page.waitForTimeout(300);
-    await page.screenshot({ path: path.join(SCREENSHOT_DIR, 'zone-form-error-desktop.png') });
+    await screenshot(page, 'zone-form-error-desktop', { fullPage: false });
     await form.locator('[data-test=form-save]').click();
     await page.waitForTimeout(300);
     expect(zoneWrites).toEqual([]);
@@ -168,27 +220,67 @@ describe('the Runnel client', () => {
     await page.close();
   });
 
-  it('switches a manager to US units, keeps the choice, and shows every flow in gal/min', async () => {
+  it('switches a manager to US units: flow, pressure, depth and area; the choice is kept for that manager only', async () => {
+    // Dog run is 70 m² and the planning page starts with a 25 mm pipe (server/db/seed-demo.ts, PlanningPage.vue).
+    // 1 ft = 0.3048 m and 1 in = 25.4 mm, exactly (NIST SP 811, 2008, Appendix B.8).
+    const metricArea = { value: '70', unit: 'm²' };
+    const usArea = { value: asInput(70 / METRES_PER_FOOT ** 2), unit: 'ft²' };
+    const usPipe = { value: asInput(25 / MM_PER_INCH), unit: 'in' };
+    expect(usArea.value).toBe('753.5');
+    expect(usPipe.value).toBe('0.9843');
+
     const page = await newPage();
     await signIn(page, 'manager@runnel.test');
     const supply = page.locator('[data-test=site-supply]').first();
     expect(await supply.innerText()).toMatch(/L\/min$/);
+    expect(await pipeDiameter(page, 'larkspur')).toEqual({ value: '25', unit: 'mm' });
+    await page.goto(`${demo.rt.url}/`);
+    await supply.waitFor();
     await page.locator('[data-test=units-us]').click();
     await page.waitForFunction(() => document.querySelector('[data-test=site-supply]')?.textContent?.includes('gal/min'));
     await openSite(page, siteName.larkspur);
     expect(await page.locator('[data-test=site-usable-supply]').innerText()).toMatch(/gal\/min$/);
     expect(await page.locator('[data-test=site-pressure]').innerText()).toMatch(/psi$/);
     expect(await zone(page, 'Dog run').locator('[data-test=zone-flow]').innerText()).toMatch(/gal\/min$/);
+    expect(await zoneArea(page, 'Dog run')).toEqual(usArea);
+    await page.evaluate(() => window.scrollTo(0, 0));
     await settle(page);
     await screenshot(page, 'site-desktop-us');
+    expect(await pipeDiameter(page, 'larkspur')).toEqual(usPipe);
 
-    // The choice is kept per user: after a reload it is still US.
+    // After a reload it is still US.
     await page.reload();
-    await page.locator('[data-test=site-usable-supply]').waitFor();
-    expect(await page.locator('[data-test=site-usable-supply]').innerText()).toMatch(/gal\/min$/);
-    await page.locator('[data-test=units-metric]').click();
-    await page.waitForFunction(() => document.querySelector('[data-test=site-usable-supply]')?.textContent?.includes('L/min'));
+    await page.locator('[data-test=pipe-diameter]').waitFor();
+    expect(await numberShown(page.locator('[data-test=pipe-diameter]'))).toEqual(usPipe);
     await page.close();
+
+    // The choice belongs to the manager, not to the browser: another user in a browser of their
+    // own still sees metric …
+    const adminPage = await newPage(await freshContext());
+    await signIn(adminPage, 'admin@runnel.test');
+    expect(await adminPage.locator('[data-test=site-supply]').first().innerText()).toMatch(/L\/min$/);
+    await openSite(adminPage, siteName.larkspur);
+    expect(await zoneArea(adminPage, 'Dog run')).toEqual(metricArea);
+    expect(await pipeDiameter(adminPage, 'larkspur')).toEqual({ value: '25', unit: 'mm' });
+
+    // … and the manager, signing in afresh in a new browser, gets US again.
+    const again = await newPage(await freshContext());
+    await signIn(again, 'manager@runnel.test');
+    expect(await again.locator('[data-test=site-supply]').first().innerText()).toMatch(/gal\/min$/);
+    await openSite(again, siteName.larkspur);
+    expect(await zoneArea(again, 'Dog run')).toEqual(usArea);
+    await again.setViewportSize(PHONE);
+    await again.evaluate(() => window.scrollTo(0, 0));
+    await settle(again);
+    await screenshot(again, 'site-phone-us');
+    expect(await pipeDiameter(again, 'larkspur')).toEqual(usPipe);
+
+    // Back to metric, for whoever signs in as the manager next.
+    await again.setViewportSize(DESKTOP);
+    await again.goto(`${demo.rt.url}/`);
+    await again.locator('[data-test=site-supply]').first().waitFor();
+    await again.locator('[data-test=units-metric]').click();
+    await again.waitForFunction(() => document.querySelector('[data-test=site-supply]')?.textContent?.includes('L/min'));
   });
 
   it('lets a technician see only their sites and change a head count, and nothing more', async () => {
@@ -234,7 +326,19 @@ describe('the Runnel client', () => {
     await page.close();
   });
 
-  it('never sent a request to a host other than 127.0.0.1', () => {
-    expect(foreign).toEqual([]);
+  it('catches a request and a WebSocket to another host, and lets the app’s own through', async () => {
+    // A page of its own (no CSP, watched apart from the per-test list) tries both toward
+    // "localhost", a name other than 127.0.0.1 that still goes nowhere off this machine.
+    const page = await browser.context.newPage();
+    opened.pages.push(page);
+    const seen = watchForeignRequests(page);
+    await page.goto('about:blank');
+    await page.evaluate(async (own) => {
+      new WebSocket('ws://localhost:9/');
+      new WebSocket(own);
+      await fetch('http://localhost:9/probe').catch(() => null);
+    }, `${demo.rt.url.replace(/^http/, 'ws')}/ws`);
+    await expect.poll(() => seen.length).toBe(2);
+    expect(seen.sort()).toEqual(['http://localhost:9/probe', 'websocket ws://localhost:9/']);
   });
 });

@@ -7,6 +7,8 @@ export const SCREENSHOT_DIR = path.resolve('test-results/screenshots');
 
 /** Debian's Chromium, headless, with its background networking off (the machine's network is closed). */
 export async function launchBrowser(): Promise<{ context: BrowserContext; close: () => Promise<void> }> {
+  // Before any test takes a picture, whichever way it takes it.
+  fs.mkdirSync(SCREENSHOT_DIR, { recursive: true });
   const dir = fs.mkdtempSync(path.join(os.tmpdir(), 'runnel-chromium-'));
   const context = await chromium.launchPersistentContext(dir, {
     executablePath: '/usr/bin/chromium',
@@ -25,20 +27,31 @@ export async function launchBrowser(): Promise<{ context: BrowserContext; close:
   };
 }
 
-/** Record every request a page makes whose host is not 127.0.0.1. */
-export function watchForeignRequests(page: Page): string[] {
-  const foreign: string[] = [];
-  page.on('request', (req) => {
-    const u = new URL(req.url());
-    if (u.protocol === 'data:' || u.protocol === 'blob:') return;
-    if (u.hostname !== '127.0.0.1') foreign.push(req.url());
-  });
-  return foreign;
+/** Is this URL somewhere other than 127.0.0.1? (data: and blob: URLs go nowhere.) */
+export function leaves127(url: string): boolean {
+  const u = new URL(url);
+  if (u.protocol === 'data:' || u.protocol === 'blob:') return false;
+  return u.hostname !== '127.0.0.1';
 }
 
-export async function screenshot(page: Page, name: string): Promise<string> {
+/**
+ * Record every request and every WebSocket a page opens whose host is not 127.0.0.1, into
+ * `into` when given (say, one list per test), and return the list.
+ */
+export function watchForeignRequests(page: Page, into: string[] = []): string[] {
+  page.on('request', (req) => {
+    if (leaves127(req.url())) into.push(req.url());
+  });
+  page.on('websocket', (ws) => {
+    if (leaves127(ws.url())) into.push(`websocket ${ws.url()}`);
+  });
+  return into;
+}
+
+/** A PNG in test-results/screenshots/ (the whole page unless `fullPage: false`). */
+export async function screenshot(page: Page, name: string, opts: { fullPage?: boolean } = {}): Promise<string> {
   fs.mkdirSync(SCREENSHOT_DIR, { recursive: true });
   const file = path.join(SCREENSHOT_DIR, `${name}.png`);
-  await page.screenshot({ path: file, fullPage: true });
+  await page.screenshot({ path: file, fullPage: opts.fullPage ?? true });
   return file;
 }
