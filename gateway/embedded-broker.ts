@@ -93,6 +93,15 @@ export async function startEmbeddedBroker(opts: {
       cb(null, null);
     },
   });
+  // A board's message is consumed in authorizePublish above, and no one may subscribe to it (a
+  // board may subscribe only to its own command topic, which boards may not publish to): routing
+  // it through aedes' topic matching and retained store would be work for no one. Only the
+  // server's own publishes (commands; client null) are routed.
+  const route = broker.publish.bind(broker) as (packet: unknown, client: unknown, done?: (e?: Error | null) => void) => void;
+  (broker as unknown as { publish: typeof route }).publish = (packet, client, done) => {
+    if (client && typeof client !== 'function') return done?.(null);
+    return route(packet, client, done);
+  };
   const clients = (broker as unknown as { clients: Record<string, Client | undefined> }).clients;
   broker.on('clientDisconnect', (client) => {
     // A board that reconnected already (session take-over) is not offline.
