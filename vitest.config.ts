@@ -1,6 +1,6 @@
 import { defineConfig } from 'vitest/config';
 
-// One run, three projects. Unit tests are pure and run in parallel; integration and e2e
+// One run, four projects (unit, integration, e2e, faults). Unit tests are pure and run in parallel; integration and e2e
 // tests each build their own database from a migrated template (see tests/helpers/db.ts).
 export default defineConfig({
   test: {
