@@ -38,7 +38,9 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   const [port, mqttPort] = [await freePort(), await freePort()];
   const url = `http://127.0.0.1:${port}`;
   const profile = process.env.BENCH_PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_PROFILE}`, '--cpu-prof-name=ingest-' + n + '-server.cpuprofile'] : [];
-  const server = spawn(process.execPath, [...profile, ...nodeProgram('server', 'server/index.ts')], {
+  // BENCH_SERVER_NODE_FLAGS: node options to try on the server (heap sizes, --heapsnapshot-signal…)
+  const flags = (process.env.BENCH_SERVER_NODE_FLAGS ?? '').split(' ').filter(Boolean);
+  const server = spawn(process.execPath, [...flags, ...profile, ...nodeProgram('server', 'server/index.ts')], {
     stdio: ['ignore', 'ignore', 'inherit'],
     env: {
       ...process.env, ...benchEnv(db.url), PORT: String(port), MQTT_PORT: String(mqttPort), ACK_TIMEOUT_MS: '5000',
@@ -110,6 +112,10 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   const t1 = Date.now();
   measuring = false;
   const serverRssMb = rssMb(server.pid!);
+  if (flags.some((f) => f.startsWith('--heapsnapshot-signal'))) {
+    server.kill('SIGUSR2');
+    await sleep(30_000);
+  }
   child.kill('SIGINT');
   const totals = (await waitFor('done')) as { sent: number; taken: number };
   // Whatever the broker acknowledged may still be on its way through the server: wait until the

@@ -65,8 +65,12 @@ export const HOURLY_MERGE = `on conflict (controller_id, hour) do update set n =
 
 const HOURLY_COLUMNS = '(controller_id, hour, n, moisture_sum, moisture_min, moisture_max, supply_sum, supply_min, supply_max, flow_n, flow_sum, flow_min, flow_max, updated_at)';
 
-/** One board message waiting for its batch: its rows already as COPY text, so a waiting message holds one string, not objects. */
-type Pending = { text: string; n: number; controllerId: number; seq: number; hours: HourSums[]; resolve: () => void; reject: (e: Error) => void };
+/**
+ * One board message waiting for its batch: its rows already as COPY text, in bytes (a string
+ * built line by line is a rope of many small strings until something flattens it; a busy fleet
+ * keeps thousands of messages waiting).
+ */
+type Pending = { text: Buffer; n: number; controllerId: number; seq: number; hours: HourSums[]; resolve: () => void; reject: (e: Error) => void };
 
 export type WriterStats = {
   rowsWritten: number;
@@ -132,7 +136,8 @@ export class ReadingWriter {
       return Promise.reject(new Error('reading buffer full'));
     }
     return new Promise((resolve, reject) => {
-      this.queue.push({ text, n, controllerId, seq, hours, resolve, reject });
+      // COPY text is ASCII (ISO times, numbers, tabs): one byte a character
+      this.queue.push({ text: Buffer.from(text, 'latin1'), n, controllerId, seq, hours, resolve, reject });
       this.stats.buffered += n;
       this.stats.maxBuffered = Math.max(this.stats.maxBuffered, this.stats.buffered);
       if (this.stats.buffered >= this.opts.batchRows || (this.opts.flushAtMessages && this.queue.length >= this.opts.flushAtMessages)) void this.flush();
@@ -320,21 +325,18 @@ function int(n: number): string {
   return String(n);
 }
 
-/**
- * Messages' COPY text in chunks of about 48 KB: small enough to stay out of V8's large-object
- * space (a string there is old-generation garbage at once), large enough for few writes.
- */
-function* chunk(texts: string[], bytes = 48_000) {
-  let part: string[] = [];
+/** Messages' COPY text in chunks of about 64 KB, so the stream writes a few large pieces. */
+function* chunk(texts: Buffer[], bytes = 64_000) {
+  let part: Buffer[] = [];
   let size = 0;
   for (const t of texts) {
     part.push(t);
     size += t.length;
     if (size >= bytes) {
-      yield part.join('');
+      yield Buffer.concat(part, size);
       part = [];
       size = 0;
     }
   }
-  if (part.length) yield part.join('');
+  if (part.length) yield Buffer.concat(part, size);
 }
