@@ -15,6 +15,8 @@ export type Site = {
   supplyFlowLpm: number;
   staticPressureKPa: number;
   supplyMarginPct: number;
+  /** Within a few km of a large body of water (changes the temperature-only radiation estimate). */
+  coastal: boolean;
   restrictions: Restrictions;
   notes: string;
   usableSupplyLpm: number;
@@ -53,6 +55,8 @@ export type Zone = {
   plantType: (typeof plantTypes)[number];
   soilTexture: (typeof soilTextures)[number];
   headType: (typeof headTypes)[number];
+  /** Another head type found on this valve; null = none. */
+  otherHeadType: (typeof headTypes)[number] | null;
   headCount: number;
   flowPerHeadLpm: number;
   areaM2: number;

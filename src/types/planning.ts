@@ -43,6 +43,7 @@ export type PlannedZone = {
   controllerName: string;
   relay: number;
   headType: Zone['headType'];
+  otherHeadType: Zone['otherHeadType'];
   headCount: number;
   flowPerHeadLpm: number;
   areaM2: number;

@@ -96,8 +96,25 @@ describe('the planning screens', () => {
     await page.locator('[data-test=weather-tmin]').fill('33');
     expect(await text(page, '[data-test=weather-tmin-error]')).toBe('Tmin must not be above Tmax');
     await page.locator('[data-test=weather-tmin]').fill('14');
+    // Solar radiation sits beside sunshine hours, checked like the API checks it.
+    await page.locator('[data-test=weather-solar]').fill('60');
+    expect(await text(page, '[data-test=weather-solar-error]')).toBe('Solar radiation at most 50 MJ/m²');
+    await page.locator('[data-test=weather-solar]').fill('5');
+    await page.setViewportSize(DESKTOP);
+    await page.locator('[data-test=weather-day-form]').scrollIntoViewIfNeeded();
+    await settle(page);
+    await screenshot(page, 'weather-form-desktop', { fullPage: false });
     await page.locator('[data-test=weather-save]').click();
-    await page.locator('.q-notification', { hasText: /Weather for \d{4}-\d{2}-\d{2} saved/ }).waitFor();
+    const note = page.locator('.q-notification', { hasText: /Weather for \d{4}-\d{2}-\d{2} saved/ });
+    await note.waitFor();
+    const day = /(\d{4}-\d{2}-\d{2})/.exec(await note.innerText())![1];
+    const stored = await page.request.get(`${demo.rt.url}/api/sites/${site('larkspur')}/weather?from=${day}&to=${day}`);
+    const [saved] = ((await stored.json()) as { items: { solarMj: number | null; et0Method: string }[] }).items;
+    expect(saved).toMatchObject({ solarMj: 5, et0Method: 'tmin/measured/wind_assumed' });
+    await page.setViewportSize(PHONE);
+    await page.locator('[data-test=weather-day-form]').scrollIntoViewIfNeeded();
+    await settle(page);
+    await screenshot(page, 'weather-form-phone', { fullPage: false });
     await page.close();
   });
 
@@ -178,6 +195,78 @@ describe('the planning screens', () => {
     await page.locator('[data-test=plan-zone-card]').first().waitFor();
     await settle(page);
     await screenshot(page, 'planning-phone');
+    await page.close();
+  });
+
+  it('warns on the planning screen about a spray found on a rotor zone', async () => {
+    const page = await newPage();
+    await signIn(page, 'manager@runnel.test');
+    await page.goto(`${demo.rt.url}/sites/${site('larkspur')}`);
+    const zoneRow = page.locator('[data-test=zone-row]').filter({ has: page.locator('[data-test=zone-name]', { hasText: /^Courtyard rotors$/ }) });
+    await zoneRow.locator('[data-test=edit-zone]').click();
+    const form = page.locator('[data-test=zone-form]');
+    await form.waitFor();
+    expect(await form.locator('[data-test=zone-mixed-heads]').count()).toBe(0);
+    await form.locator('[data-test=zone-field-other-head-type]').click();
+    // The zone's own type is not offered as the other one.
+    expect(await page.locator('.q-menu .q-item').allInnerTexts()).toEqual(['Spray', 'Drip', 'Bubbler']);
+    await page.locator('.q-menu .q-item', { hasText: /^Spray$/ }).click();
+    expect(await form.locator('[data-test=zone-mixed-heads]').innerText()).toMatch(/Sprays and rotors on one valve/);
+    await settle(page);
+    await screenshot(page, 'zone-form-other-head-desktop');
+    const saved = page.waitForResponse((r) => r.url().includes('/api/zones/') && r.request().method() === 'PATCH');
+    await form.locator('[data-test=form-save]').click();
+    const res = await saved;
+    expect(res.status()).toBe(200);
+    expect(res.request().postDataJSON()).toEqual({ otherHeadType: 'spray' });
+    await form.waitFor({ state: 'detached' });
+
+    await page.goto(`${demo.rt.url}/sites/${site('larkspur')}/planning`);
+    const rotors = page.locator('[data-test=plan-zone-row]').filter({ has: page.locator('[data-test=plan-zone-name]', { hasText: /^Courtyard rotors$/ }) });
+    const warning = rotors.locator('[data-test=plan-warning-mixed_spray_rotor]');
+    await warning.waitFor();
+    expect((await warning.locator('.warn-title').innerText()).trim()).toBe('Sprays and rotors mixed');
+    expect((await rotors.locator('[data-test=plan-head-type]').innerText()).trim()).toBe('Rotor + spray');
+    // No other zone is flagged for mixed heads.
+    expect(await page.locator('[data-test=plan-warning-mixed_spray_rotor]').count()).toBe(1);
+    await settle(page);
+    await screenshot(page, 'planning-mixed-desktop');
+    await page.setViewportSize(PHONE);
+    const card = page.locator('[data-test=plan-zone-card]').filter({ has: page.locator('[data-test=plan-zone-name]', { hasText: /^Courtyard rotors$/ }) });
+    await card.locator('[data-test=plan-warning-mixed_spray_rotor]').waitFor();
+    await card.scrollIntoViewIfNeeded();
+    await settle(page);
+    await screenshot(page, 'planning-mixed-phone', { fullPage: false });
+    await page.close();
+  });
+
+  it('lets an admin mark a site coastal in the site form, with a word on what it changes', async () => {
+    const page = await newPage();
+    await signIn(page, 'admin@runnel.test');
+    await page.goto(`${demo.rt.url}/sites/${site('millbrook')}`);
+    await page.locator('[data-test=edit-site]').click();
+    const form = page.locator('[data-test=site-form]');
+    await form.waitFor();
+    const box = form.locator('[data-test=site-field-coastal]');
+    expect(await box.getAttribute('aria-checked')).toBe('false');
+    expect(await form.locator('#site-coastal-help').innerText()).toMatch(/large body of water: changes the radiation estimate when only temperatures are known/);
+    await box.click();
+    expect(await box.getAttribute('aria-checked')).toBe('true');
+    await box.scrollIntoViewIfNeeded();
+    await settle(page);
+    await screenshot(page, 'site-form-coastal-desktop', { fullPage: false });
+    await page.setViewportSize(PHONE);
+    await box.scrollIntoViewIfNeeded();
+    await settle(page);
+    await screenshot(page, 'site-form-coastal-phone', { fullPage: false });
+    const saved = page.waitForResponse((r) => r.url().includes('/api/sites/') && r.request().method() === 'PATCH');
+    await form.locator('[data-test=form-save]').click();
+    const res = await saved;
+    expect(res.status()).toBe(200);
+    expect(res.request().postDataJSON()).toEqual({ coastal: true });
+    await form.waitFor({ state: 'detached' });
+    const back = await page.request.get(`${demo.rt.url}/api/sites/${site('millbrook')}`);
+    expect(((await back.json()) as { coastal: boolean }).coastal).toBe(true);
     await page.close();
   });
 

@@ -27,6 +27,12 @@ export const headLabels: Record<Zone['headType'], string> = {
   bubbler: 'Bubbler',
 };
 
+/** The zone's head type, with another found on the same valve: "Rotor + spray". */
+export function headsLabel(z: Pick<Zone, 'headType' | 'otherHeadType'>): string {
+  const main = headLabels[z.headType];
+  return z.otherHeadType ? `${main} + ${headLabels[z.otherHeadType].toLowerCase()}` : main;
+}
+
 const opts = <K extends string>(keys: readonly K[], labels: Record<K, string>) => keys.map((value) => ({ value, label: labels[value] }));
 
 export const plantOptions = opts(plantTypes, plantLabels);
