@@ -9,7 +9,8 @@ import { seedDemoWeather } from './seed-weather';
 /**
  * The demo scenario. Everything here is invented: Fernhollow Grounds Care looks after four
  * properties in two timezones. Hydraulics are plausible for the head types (sprays about
- * 4–8 L/min a head, rotors 8–15 L/min, drip emitters a few litres an hour).
+ * 4–8 L/min a head, rotors 8–15 L/min, drip emitters a few litres an hour). Every site is
+ * well inland (Denver, Lakewood, Naperville, Sacramento), so none is marked coastal.
  */
 export const DEMO_PASSWORD = 'runnel-demo';
 export const DEMO_FIRM = 'Fernhollow Grounds Care';
