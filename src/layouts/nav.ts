@@ -30,6 +30,7 @@ export const navEntries: readonly NavEntry[] = [
   { key: 'webhooks', label: 'Webhooks', icon: 'webhook', to: { name: 'webhooks' }, roles: ['admin'] },
   { key: 'api', label: 'API reference', icon: 'menu_book', to: { name: 'api-docs' }, roles: ['admin', 'manager'] },
   { key: 'simulator', label: 'Simulated boards', icon: 'developer_board', to: { name: 'simulator' }, roles: ['admin'], demoOnly: true },
+  { key: 'mail', label: 'Caught mail', icon: 'mark_email_read', to: { name: 'mail-outbox' }, roles: ['admin'], demoOnly: true },
 ];
 
 export function navFor(role: Role | null, demo = false): NavEntry[] {

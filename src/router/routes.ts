@@ -57,6 +57,19 @@ export const routes: RouteRecordRaw[] = [
         meta: { title: 'Simulated boards', roles: ['admin'], demoOnly: true },
       },
       {
+        path: 'demo/mail',
+        name: 'mail-outbox',
+        component: () => import('../pages/MailOutboxPage.vue'),
+        meta: { title: 'Caught mail', roles: ['admin'], demoOnly: true },
+      },
+      {
+        path: 'controllers/:id(\\d+)/readings',
+        name: 'controller-readings',
+        component: () => import('../pages/SensorHistoryPage.vue'),
+        props: (r) => ({ id: Number(r.params.id) }),
+        meta: { title: 'Sensor history' },
+      },
+      {
         path: 'sites/:id(\\d+)/supply',
         name: 'site-supply',
         component: () => import('../pages/SupplyPage.vue'),
