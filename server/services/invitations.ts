@@ -56,7 +56,7 @@ async function sendAccountMail(db: Db, mail: AccountMail, u: User, category: 'in
 function inviteMail(mail: AccountMail, u: User, inviter: string, token: string, expiresAt: Date, hours: number): OutgoingMail {
   const url = `${mail.baseUrl}/accept-invite?token=${encodeURIComponent(token)}`;
   const { text, html } = renderMail(mail.firmName, {
-    intro: `${inviter} has invited you to ${mail.firmName}'s Runnel as ${ROLE_WORDS[u.role]}.`,
+    intro: `${inviter} has invited you to ${mail.firmName === 'Runnel' ? 'Runnel' : `${mail.firmName}'s Runnel`} as ${ROLE_WORDS[u.role]}.`,
     sections: [
       {
         heading: 'To join',
