@@ -37,7 +37,7 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   const { boards, zoneIds } = await buildFleet(db, n);
   const [port, mqttPort] = [await freePort(), await freePort()];
   const url = `http://127.0.0.1:${port}`;
-  const profile = process.env.BENCH_PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_PROFILE}`, '--cpu-prof-name=ingest-' + n + '-server.cpuprofile'] : [];
+  const profile = process.env.BENCH_PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_PROFILE}`, `--cpu-prof-name=ingest-${n}-server.cpuprofile`] : [];
   // BENCH_SERVER_NODE_FLAGS: node options to try on the server (heap sizes, --heapsnapshot-signal…)
   const flags = (process.env.BENCH_SERVER_NODE_FLAGS ?? '').split(' ').filter(Boolean);
   const server = spawn(process.execPath, [...flags, ...profile, ...nodeProgram('server', 'server/index.ts')], {
@@ -50,7 +50,8 @@ export async function benchIngest(n: number, opts: { windowMs?: number; samplesP
   await waitHealthy(url);
   const fleetFile = path.join(os.tmpdir(), `runnel-bench-fleet-${n}.json`);
   fs.writeFileSync(fleetFile, JSON.stringify({ boards }));
-  const child = spawn(process.execPath, [...nodeProgram('sim-child', 'bench/sim-child.ts'), fleetFile, `mqtt://127.0.0.1:${mqttPort}`, String(Math.round(1000 / perSecond)), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
+  const simProfile = process.env.BENCH_PROFILE ? ['--cpu-prof', `--cpu-prof-dir=${process.env.BENCH_PROFILE}`, `--cpu-prof-name=ingest-${n}-sim.cpuprofile`] : [];
+  const child = spawn(process.execPath, [...simProfile, ...nodeProgram('sim-child', 'bench/sim-child.ts'), fleetFile, `mqtt://127.0.0.1:${mqttPort}`, String(Math.round(1000 / perSecond)), String(perSecond)], { stdio: ['ignore', 'pipe', 'inherit'] });
   const lines = readline.createInterface({ input: child.stdout! });
   const msgs: Record<string, unknown>[] = [];
   const waitFor = (key: string) =>

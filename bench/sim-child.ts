@@ -9,7 +9,7 @@ import { fleetFileSchema } from '../simulator/spec';
  */
 const [fleetFile, brokerUrl, sampleMs, perMsg] = process.argv.slice(2);
 const fleet = fleetFileSchema.parse(JSON.parse(fs.readFileSync(fleetFile, 'utf8')));
-const sim = await startSimulator({ brokerUrl, boards: fleet.boards, seed: 42, sampleIntervalMs: Number(sampleMs), samplesPerMessage: Number(perMsg), connectBatchSize: 100 });
+const sim = await startSimulator({ brokerUrl, boards: fleet.boards, seed: 42, sampleIntervalMs: Number(sampleMs), samplesPerMessage: Number(perMsg), samplesInBursts: Number(perMsg) > 1, connectBatchSize: 100 });
 await sim.ready();
 process.stdout.write(JSON.stringify({ ready: true }) + '\n');
 process.on('SIGINT', async () => {

@@ -16,6 +16,13 @@ export type SimBoardOptions = {
   clock?: Clock;
   sampleIntervalMs?: number;
   samplesPerMessage?: number;
+  /**
+   * Take a message's samples together when it is due, at their own times (sampleIntervalMs
+   * apart, the last one now): one timer a message instead of one a sample, for fleets that sample
+   * faster than one process can run timers. The values are the same; a valve change shows from
+   * the next message's samples instead of from the next sample.
+   */
+  samplesInBursts?: boolean;
   /** Offline buffer size in messages (default 10,000). */
   bufferLimit?: number;
   /** Failsafe for a relay opened by the local button (default 600 s). */
@@ -67,6 +74,8 @@ export class SimBoard {
   private readonly bank: RelayBank;
   private readonly sensors: SensorModel;
   private readonly phaseMs: number;
+  /** Time between sampling timers: one sample, or one message's samples in burst mode. */
+  private readonly stepMs: number;
   private powered = false;
   private startedOnce = false;
   private rain = false;
@@ -96,7 +105,8 @@ export class SimBoard {
     const seed = boardSeed(opts.seed ?? 1, spec.serial);
     this.sensors = new SensorModel(new Rng(seed));
     const timing = new Rng(seed ^ 0x9e3779b9);
-    this.phaseMs = Math.floor(timing.float() * this.sampleIntervalMs);
+    this.stepMs = opts.samplesInBursts ? this.sampleIntervalMs * this.samplesPerMessage : this.sampleIntervalMs;
+    this.phaseMs = Math.floor(timing.float() * this.stepMs);
     this.reconnectPeriodMs = opts.reconnectPeriodMs ?? 1000 + Math.floor(timing.float() * 1000);
     this.bank = new RelayBank(spec.relayCount, this.clock, (r) => this.faultState.stuck.has(r), (r) => this.onFailsafe(r));
     this.uplink = new Uplink(
@@ -384,16 +394,21 @@ export class SimBoard {
   private tick(): void {
     this.sampleTimer = null;
     if (!this.powered) return;
-    this.takeSample(this.sampleIntervalMs / 1000);
-    if (this.batch.length >= this.samplesPerMessage) this.flushBatch();
     const now = this.clock.now();
-    this.nextSampleMs += this.sampleIntervalMs;
-    if (this.nextSampleMs < now) this.nextSampleMs = now + this.sampleIntervalMs; // fell behind: skip, never burst
+    if (this.stepMs !== this.sampleIntervalMs) {
+      for (let k = this.samplesPerMessage - 1; k >= 0; k--) this.takeSample(this.sampleIntervalMs / 1000, now - k * this.sampleIntervalMs);
+      this.flushBatch();
+    } else {
+      this.takeSample(this.sampleIntervalMs / 1000);
+      if (this.batch.length >= this.samplesPerMessage) this.flushBatch();
+    }
+    this.nextSampleMs += this.stepMs;
+    if (this.nextSampleMs < now) this.nextSampleMs = now + this.stepMs; // fell behind: skip, never burst
     this.sampleTimer = this.clock.setTimeout(() => this.tick(), this.nextSampleMs - now);
   }
 
   /** One sample. Physics steps by the nominal interval (not wall time), so values depend on the seed only. */
-  private takeSample(dtSeconds: number): void {
+  private takeSample(dtSeconds: number, takenAtMs = this.clock.now()): void {
     const open = this.bank.openRelays();
     const master = this.spec.masterValveRelay ?? null;
     const watering = (master === null || open.includes(master)) && open.some((r) => r !== master);
@@ -406,7 +421,7 @@ export class SimBoard {
       lowVoltage: this.faultState.lowVoltage,
     });
     // A board's sample times only move forward: two samples never share a millisecond.
-    const atMs = Math.max(this.clock.now(), this.lastSampleMs + 1);
+    const atMs = Math.max(takenAtMs, this.lastSampleMs + 1);
     this.lastSampleMs = atMs;
     const sample: Sample = { at: this.boardIso(atMs), ...reading };
     this.batch.push(sample);

@@ -14,6 +14,8 @@ export type SimulatorOptions = {
   clock?: Clock;
   sampleIntervalMs?: number;
   samplesPerMessage?: number;
+  /** See SimBoardOptions.samplesInBursts. */
+  samplesInBursts?: boolean;
   /** Control API port: undefined = no HTTP API, 0 = a free port. */
   controlPort?: number;
   controlHost?: '127.0.0.1';
@@ -49,6 +51,7 @@ export async function startSimulator(opts: SimulatorOptions): Promise<Simulator>
         clock: opts.clock,
         sampleIntervalMs: opts.sampleIntervalMs,
         samplesPerMessage: opts.samplesPerMessage,
+        samplesInBursts: opts.samplesInBursts,
         bufferLimit: opts.bufferLimit,
         reconnectPeriodMs: opts.reconnectPeriodMs,
         log: opts.log,

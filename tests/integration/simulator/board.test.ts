@@ -340,6 +340,33 @@ describe('simulated relay board over a real broker', () => {
     expect(again).toEqual(a);
     expect(other.map((t) => t.samples.map((x: { moistureRaw: number }) => x.moistureRaw))).not.toEqual(a.map((t) => t.samples.map((x: { moistureRaw: number }) => x.moistureRaw)));
   });
+
+  it('takes a message’s samples together in burst mode: the same values, each at its own time', async () => {
+    const s = spec();
+    async function messages(samplesInBursts: boolean) {
+      const clock = new ManualClock();
+      const b = new SimBoard(s, { brokerUrl: broker.url, seed: 9, clock, sampleIntervalMs: 1000, samplesPerMessage: 5, samplesInBursts, seqStart: 1, reconnectPeriodMs: 100 });
+      const from = server.seen.length;
+      await b.start();
+      b.pressButton(2, true);
+      clock.advance(12_000);
+      const tele = await waitFor(() => {
+        const t = server.seen.slice(from).filter((m) => m.serial === s.serial && m.kind === 'telemetry');
+        return t.length >= 2 && t;
+      }, 'two telemetry messages');
+      await b.stop();
+      return tele.slice(0, 2).map((m) => m.json as { samples: { at: string; moistureRaw: number; flowLpm: number | null }[] });
+    }
+    const steady = await messages(false);
+    const burst = await messages(true);
+    const values = (ms: typeof steady) => ms.map((m) => m.samples.map(({ at: _at, ...v }) => v));
+    expect(burst[0].samples).toHaveLength(5);
+    expect(values(burst)).toEqual(values(steady));
+    // one second apart within a message and across messages, as if taken one by one
+    const times = burst.flatMap((m) => m.samples.map((x) => Date.parse(x.at)));
+    expect(times.slice(1).map((t, i) => t - times[i])).toEqual(Array(9).fill(1000));
+    expect(burst[0].samples[0].flowLpm).toBeGreaterThan(0);
+  });
 });
 
 describe('simulated relay board when the broker goes away', () => {
