@@ -59,6 +59,8 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
     return new Date(Math.min(t, receivedAt.getTime()));
   }
 
+  /** When each board was last marked offline (server time, as receivedAt is). */
+  const offlineSince = new Map<number, number>();
   async function setOnline(b: BoardLive, online: boolean, at: Date) {
     const changed = b.online !== online;
     b.online = online;
@@ -121,6 +123,7 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       log.info({ serial, reason }, 'board offline');
       await db.update(controllers).set({ online: false }).where(eq(controllers.id, b.controllerId));
       b.online = false;
+      offlineSince.set(b.controllerId, at.getTime());
       bus.publish({ type: 'controller', siteId: b.siteId, controllerId: b.controllerId, online: false, lastSeenAt: b.lastSeenAt ? new Date(b.lastSeenAt).toISOString() : null });
       listener?.onlineChanged(b, false);
       void at;
@@ -208,7 +211,9 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       samples = []; // (let the message go while the commit is awaited; only its newest sample is needed)
       await writer.writeText(b.controllerId, seq, text, n, hours);
       b.lastSeenAt = recvMs;
-      if (!b.online) await setOnline(b, true, receivedAt);
+      // A batch that commits after the board went offline does not bring it back: only a message
+      // received after that does (the board reconnected).
+      if (!b.online && receivedAt.getTime() > (offlineSince.get(b.controllerId) ?? -Infinity)) await setOnline(b, true, receivedAt);
       // Shared ingest can hand an older message over after a newer one: it is stored, but the
       // live picture (latest reading, rain) only moves forward in time.
       if (b.latest && lastAtMs < b.latest.atMs) return;
