@@ -4,6 +4,7 @@ import type { Express } from 'express';
 import { createTestDb, type TestDb } from '../helpers/db';
 import { buildTestApp, signedIn } from '../helpers/api';
 import { seedFixture, type Fixture } from '../helpers/fixtures';
+import { mountedRoutes } from '../helpers/route-coverage';
 
 let tdb: TestDb;
 let app: Express;
@@ -17,22 +18,6 @@ beforeAll(async () => {
 afterAll(async () => {
   await tdb.drop();
 });
-
-type Layer = { rawPath?: unknown; route?: { path: string; methods: Record<string, boolean> }; handle?: { stack?: Layer[] } };
-
-/** Every route the app serves, as "METHOD /api/…", read from Express's own router stack. */
-function mountedRoutes(app: Express): string[] {
-  const out = new Set<string>();
-  const walk = (stack: Layer[], prefix: string) => {
-    for (const l of stack) {
-      if (l.route) {
-        for (const m of Object.keys(l.route.methods)) if (m !== '_all') out.add(`${m.toUpperCase()} ${(prefix + l.route.path).replace(/(.)\/$/, '$1')}`);
-      } else if (l.handle?.stack) walk(l.handle.stack, prefix + (typeof l.rawPath === 'string' && l.rawPath !== '/' ? l.rawPath : ''));
-    }
-  };
-  walk((app as unknown as { router: { stack: Layer[] } }).router.stack, '');
-  return [...out].filter((r) => r.includes(' /api/')).sort();
-}
 
 describe('GET /api/openapi.json', () => {
   it('is for signed-in users only', async () => {
