@@ -15,7 +15,7 @@ try {
     if (stopping) return;
     stopping = true;
     rt.log.info({ signal }, 'shutting down');
-    const force = setTimeout(() => process.exit(1), 10_000);
+    const force = setTimeout(() => process.exit(1), config.SHUTDOWN_GRACE_MS + 10_000);
     force.unref();
     await rt.close();
     process.exit(0);

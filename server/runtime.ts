@@ -120,18 +120,36 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
   const sweep = setInterval(() => void sink.sweepSilent(config.OFFLINE_AFTER_SECONDS * 1000).catch(() => {}), 5000);
   sweep.unref();
 
+  // Requests being answered; a stop lets them finish before the database pools close.
+  let inFlight = 0;
+  let drained: (() => void) | null = null;
+  server.on('request', (_req, res) => {
+    inFlight++;
+    res.once('close', () => {
+      if (--inFlight === 0) drained?.();
+    });
+  });
+
   let closing: Promise<void> | null = null;
   const close = () =>
     (closing ??= (async () => {
       clearInterval(sweep);
+      // Stop taking requests first, and let the ones already running finish (bounded), so no
+      // handler meets a closed pool; idle keep-alive connections close straight away.
+      const httpClosed = new Promise<void>((ok) => server.close(() => ok()));
+      server.closeIdleConnections();
+      if (inFlight > 0) {
+        await new Promise<void>((ok) => {
+          drained = ok;
+          setTimeout(ok, config.SHUTDOWN_GRACE_MS).unref();
+        });
+      }
+      await hub.close();
+      server.closeAllConnections();
+      await httpClosed;
       for (const e of extras.reverse()) await e.close().catch((err) => log.warn({ err, part: e.name }, 'close failed'));
       await scheduler.stop();
       dispatcher.stop();
-      await hub.close();
-      await new Promise<void>((ok) => {
-        server.close(() => ok());
-        server.closeAllConnections();
-      });
       await gateway.close().catch(() => {});
       await writer.close().catch(() => {});
       await ingestDbh.close();
