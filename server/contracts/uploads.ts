@@ -59,7 +59,7 @@ export type ServiceRecordView = {
 
 /** Columns of the zones CSV, in order (export, template and import share them). */
 export const zoneCsvColumns = [
-  'controller_serial', 'relay', 'name', 'plant_type', 'soil_texture', 'head_type', 'head_count',
+  'controller_serial', 'relay', 'name', 'plant_type', 'soil_texture', 'head_type', 'other_head_type', 'head_count',
   'flow_per_head_lpm', 'area_m2', 'root_depth_m', 'efficiency', 'moisture_threshold_pct', 'notes',
 ] as const;
 export type ZoneCsvColumn = (typeof zoneCsvColumns)[number];
@@ -69,7 +69,7 @@ export const requiredZoneCsvColumns: ZoneCsvColumn[] = [
 /** CSV column → zone field (server/contracts/zones.ts). */
 export const zoneCsvField: Record<ZoneCsvColumn, string> = {
   controller_serial: 'controllerId', relay: 'relay', name: 'name', plant_type: 'plantType', soil_texture: 'soilTexture',
-  head_type: 'headType', head_count: 'headCount', flow_per_head_lpm: 'flowPerHeadLpm', area_m2: 'areaM2',
+  head_type: 'headType', other_head_type: 'otherHeadType', head_count: 'headCount', flow_per_head_lpm: 'flowPerHeadLpm', area_m2: 'areaM2',
   root_depth_m: 'rootDepthM', efficiency: 'efficiency', moisture_threshold_pct: 'moistureThresholdPct', notes: 'notes',
 };
 export const ZONE_CSV_MAX_BYTES = 1024 * 1024;

@@ -31,9 +31,10 @@ export const ZONE_CSV_TEMPLATE = [
   `# plant_type: ${plantTypes.join(' | ')}`,
   `# soil_texture: ${soilTextures.join(' | ')}`,
   `# head_type: ${headTypes.join(' | ')}`,
+  '# other_head_type (optional): another head type found on the same valve, not the head_type; empty = none.',
   '# head_count: heads on the zone; flow_per_head_lpm: L/min per head; area_m2: m²; root_depth_m: m.',
   '# Optional: efficiency 0.3–1 (empty = 0.75); moisture_threshold_pct 1–100 (empty = not used); notes.',
-  '# Example: RN-ABCD-EFGH,3,Front lawn,cool_season_turf,loam,spray,8,5.5,120,0.15,0.7,,North side',
+  '# Example: RN-ABCD-EFGH,3,Front lawn,cool_season_turf,loam,rotor,spray,8,5.5,120,0.15,0.7,,North side',
   zoneCsvColumns.join(','),
   '',
 ].join('\n');
@@ -57,7 +58,7 @@ export async function exportZonesCsv(ctx: Ctx, siteId: number): Promise<{ filena
     .where(eq(controllers.siteId, siteId))
     .orderBy(asc(controllers.serial), asc(zones.relay));
   const records = rows.map(({ z, serial }) => [
-    serial, z.relay, z.name, z.plantType, z.soilTexture, z.headType, z.headCount, z.flowPerHeadLpm, z.areaM2, z.rootDepthM, z.efficiency,
+    serial, z.relay, z.name, z.plantType, z.soilTexture, z.headType, z.otherHeadType ?? '', z.headCount, z.flowPerHeadLpm, z.areaM2, z.rootDepthM, z.efficiency,
     z.moistureThresholdPct ?? '', z.notes,
   ]);
   const csv = stringify(records, { header: true, columns: [...zoneCsvColumns] });
@@ -131,7 +132,8 @@ export async function importZonesCsv(ctx: Ctx, siteId: number, file: UploadedFil
           else if (col !== 'efficiency') rowErrors.push({ line, field: col, message: 'Required' });
         } else if (!/^-?\d+(\.\d+)?$/.test(v)) rowErrors.push({ line, field: col, message: `“${v.slice(0, 20)}” is not a number` });
         else obj[zoneCsvField[col]] = Number(v);
-      } else if (v !== '' || col === 'name') obj[zoneCsvField[col]] = v;
+      } else if (col === 'other_head_type') obj[zoneCsvField[col]] = v === '' ? null : v;
+      else if (v !== '' || col === 'name') obj[zoneCsvField[col]] = v;
     }
     const serial = cell.controller_serial.toUpperCase();
     const board = boards.find((b) => b.serial === serial);

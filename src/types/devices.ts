@@ -30,6 +30,7 @@ export type ZoneCsvRow = {
   plantType: string;
   soilTexture: string;
   headType: string;
+  otherHeadType: string | null;
   headCount: number;
   flowPerHeadLpm: number;
   areaM2: number;

@@ -440,7 +440,7 @@ async function touchDrag(page: Page, id: number, x: number, y: number): Promise<
   await cdp.detach();
 }
 
-const CSV_HEADER = 'controller_serial,relay,name,plant_type,soil_texture,head_type,head_count,flow_per_head_lpm,area_m2,root_depth_m,efficiency,moisture_threshold_pct,notes';
+const CSV_HEADER = 'controller_serial,relay,name,plant_type,soil_texture,head_type,other_head_type,head_count,flow_per_head_lpm,area_m2,root_depth_m,efficiency,moisture_threshold_pct,notes';
 
 describe('zones from a CSV file', () => {
   it('shows the bad row’s error and saves nothing, then adds every row of the corrected file', async () => {
@@ -469,8 +469,8 @@ describe('zones from a CSV file', () => {
       buffer: Buffer.from(
         [
           CSV_HEADER,
-          'FHG-LC-0102,4,Bike shed strip,groundcover,loam,spray,4,4.5,40,0.2,,,',
-          `FHG-LC-0101,7,Tennis court edge,cool_season_turf,clay_loam,spray,${heads},5.5,60,0.15,0.7,,`,
+          'FHG-LC-0102,4,Bike shed strip,groundcover,loam,spray,,4,4.5,40,0.2,,,',
+          `FHG-LC-0101,7,Tennis court edge,cool_season_turf,clay_loam,spray,,${heads},5.5,60,0.15,0.7,,`,
           '',
         ].join('\n'),
       ),
