@@ -7,6 +7,7 @@ import { conflict, forbidden, notFound } from '../errors';
 import { canSeeSite, type Actor } from './actor';
 import { recordAudit } from './audit';
 import { controllerView, siteView, zoneView } from './views';
+import { et0InputsChanged, recomputeSiteEt0 } from './et0';
 
 type Ctx = { db: Db; actor: Actor };
 
@@ -81,7 +82,12 @@ export async function updateSite(ctx: Ctx, id: number, raw: unknown) {
   if (ctx.actor.role !== 'admin' && ctx.actor.role !== 'manager') throw forbidden('Only an admin or manager may change a site');
   const input = parse(updateSiteSchema, raw);
   return inTx(ctx.db, async (tx) => {
+    // Compared with the row as locked here, so a concurrent update is not missed.
+    const [locked] = await tx.select().from(sites).where(eq(sites.id, id)).for('update');
+    if (!locked) throw notFound('Site');
     const [s] = await tx.update(sites).set({ ...input, updatedAt: sql`now()` }).where(eq(sites.id, id)).returning();
+    // Stored ET₀ depends on the site's latitude, elevation and coastal flag: follow a change.
+    if (et0InputsChanged(locked, s)) await recomputeSiteEt0(tx, id, s);
     await recordAudit(tx, ctx.actor, { action: 'site.update', entityType: 'site', entityId: id, siteId: id, before, after: s });
     return siteView(s);
   });

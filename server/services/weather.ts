@@ -9,30 +9,17 @@ import {
 } from '../contracts/weather';
 import { parse } from '../middleware/validate';
 import { AppError, forbidden, notFound } from '../errors';
-import { dayOfYear, referenceEt0Details } from '../domain/agronomy';
 import { DomainInputError } from '../domain/errors';
 import type { Actor } from './actor';
 import { recordAudit } from './audit';
 import { loadVisibleSite } from './sites';
 import { round } from './views';
+import { computeEt0, type Et0Result, type WeatherValues } from './et0';
 import { dayNumber, isoFromDayNumber } from '../weather/generator';
 
 export type Ctx = { db: Db; actor: Actor; now?: () => number };
 
-/** The measured values of a day, metric; null where not measured. */
-export type WeatherValues = {
-  tmaxC: number;
-  tminC: number;
-  rhMaxPct: number | null;
-  rhMinPct: number | null;
-  windMs: number | null;
-  windHeightM: number | null;
-  sunshineH: number | null;
-  solarMj: number | null;
-  rainMm: number;
-};
-
-export type Et0Result = { et0Mm: number; et0Method: string };
+export { computeEt0, type Et0Result, type WeatherValues } from './et0';
 
 /** Domain input names → the API's field names. */
 export const DOMAIN_FIELD: Record<string, keyof WeatherValues | 'date' | 'site.latitude' | 'site.elevationM'> = {
@@ -48,33 +35,6 @@ export const DOMAIN_FIELD: Record<string, keyof WeatherValues | 'date' | 'site.l
   elevationM: 'site.elevationM',
   dayOfYear: 'date',
 };
-
-const un = (v: number | null) => (v === null ? undefined : v);
-
-/**
- * ET₀ of a day at a site (FAO-56 Penman–Monteith via referenceEt0Details, with FAO-56's
- * fallbacks for missing humidity, radiation and wind). A coastal site estimates radiation
- * from the temperature range with kRs 0.19 instead of 0.16 (Eq. 50). et0Method records the
- * data path: "<humidity>/<radiation>/<wind>", e.g. "rh_max_min/sunshine/wind_measured" or
- * "tmin/temperature_range/wind_assumed". Throws DomainInputError for impossible data.
- */
-export function computeEt0(site: Pick<Site, 'latitude' | 'elevationM' | 'coastal'>, date: string, v: WeatherValues): Et0Result {
-  const d = referenceEt0Details({
-    tmaxC: v.tmaxC,
-    tminC: v.tminC,
-    rhMaxPct: un(v.rhMaxPct),
-    rhMinPct: un(v.rhMinPct),
-    windSpeedMs: un(v.windMs),
-    windHeightM: un(v.windHeightM),
-    sunshineHours: un(v.sunshineH),
-    solarRadiationMJ: un(v.solarMj),
-    latitudeDeg: site.latitude,
-    elevationM: site.elevationM,
-    dayOfYear: dayOfYear(date),
-    coastal: site.coastal,
-  });
-  return { et0Mm: d.et0, et0Method: `${d.humiditySource}/${d.radiationSource}/${d.windAssumed ? 'wind_assumed' : 'wind_measured'}` };
-}
 
 /** A domain error as the one 400 shape, naming the API field. */
 export function domainError(e: DomainInputError) {
