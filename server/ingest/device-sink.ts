@@ -200,7 +200,11 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       const hours: HourSums[] = [];
       for (const x of samples) {
         const boardMs = Date.parse(x.at);
-        const atMs = Math.min(boardMs + b.clockOffsetMs, recvMs);
+        // A trusted clock a little ahead of ours (the newest sample is taken as the message leaves)
+        // keeps its own time, so a message sent again gets the same stored time and is recognised
+        // as stored; a time further ahead than any trusted clock can be is this server's receipt time.
+        const corrected = boardMs + b.clockOffsetMs;
+        const atMs = corrected <= recvMs + CLOCK_TOLERANCE_MS ? corrected : recvMs;
         // A trusted board time is stored as the board wrote it (the protocol checked it).
         text += copyLine(b.controllerId, atMs === boardMs ? x.at : new Date(atMs).toISOString(), x.at, recvIso, seq, x);
         addToHour(hours, atMs, x);
