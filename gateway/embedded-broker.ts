@@ -23,7 +23,7 @@ export const MAX_MESSAGES_IN_DELIVERY = 1_000_000;
 
 /**
  * Aedes on loopback. Boards authenticate with serial + secret; each may publish only under its
- * own topics and subscribe only to its own command topic. Board messages are consumed inside
+ * own topics and subscribe only to its own command and receipt topics. Board messages are consumed inside
  * authorizePublish and the PUBACK is held until the sink has stored them, so an acknowledged
  * publish is a stored publish, and a slow database slows the boards instead of filling memory.
  */
@@ -87,14 +87,14 @@ export async function startEmbeddedBroker(opts: {
         });
     },
     authorizeSubscribe: (client, sub, cb) => {
-      if (sub.topic === topicFor(client.id, 'cmd')) return cb(null, sub);
+      if (sub.topic === topicFor(client.id, 'cmd') || sub.topic === topicFor(client.id, 'stored')) return cb(null, sub);
       handler.stats.dropped.acl_subscribe++;
       log.warn({ serial: client.id, topic: sub.topic }, 'subscription refused');
       cb(null, null);
     },
   });
   // A board's message is consumed in authorizePublish above, and no one may subscribe to it (a
-  // board may subscribe only to its own command topic, which boards may not publish to): routing
+  // board may subscribe only to its own command and receipt topics, which boards may not publish to): routing
   // it through aedes' topic matching and retained store would be work for no one. Only the
   // server's own publishes (commands; client null) are routed.
   const route = broker.publish.bind(broker) as (packet: unknown, client: unknown, done?: (e?: Error | null) => void) => void;

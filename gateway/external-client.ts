@@ -63,8 +63,11 @@ export async function connectExternalBroker(opts: {
     await client.subscribeAsync(topics, { qos: 1 });
     // Subscribe again on every reconnect, even when the broker says it kept our session: a broker
     // restored from its persistence file does not always bring shared subscriptions back.
+    // (mqtt.js skips topics it thinks it has already, so the map says `resubscribe`.)
     client.on('connect', () => {
-      client.subscribe(topics, { qos: 1 }, (err) => err && log.warn({ err: err.message, clientId }, 'resubscribe failed'));
+      const again: mqtt.ISubscriptionMap = Object.fromEntries(topics.map((t) => [t, { qos: 1 as const }]));
+      again.resubscribe = true;
+      client.subscribe(again, (err) => err && log.warn({ err: err.message, clientId }, 'resubscribe failed'));
     });
     return { client, topics };
   };
@@ -86,6 +89,7 @@ export async function connectExternalBroker(opts: {
       await Promise.all(all.map((c) => c.client.unsubscribeAsync(c.topics).catch(() => {})));
       // finish storing what was received, so its PUBACKs go out before the sessions end
       await Promise.race([handler.idle(), new Promise((r) => setTimeout(r, 10_000))]);
+      handler.flushReceipts();
       await Promise.all(
         all.map((c) => c.client.endAsync(false, { properties: { sessionExpiryInterval: 0 } } as never).catch(() => c.client.end(true))),
       );

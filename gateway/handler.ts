@@ -1,5 +1,5 @@
 import type { Logger } from 'pino';
-import { MAX_PAYLOAD_BYTES, parseTopic, schemaFor, boardPublishes, type MessageKind } from '../server/contracts/protocol';
+import { MAX_PAYLOAD_BYTES, MAX_RECEIPT_SEQS, parseTopic, schemaFor, boardPublishes, type MessageKind } from '../server/contracts/protocol';
 import type { DeviceSink, DropReason, GatewayStats } from './types';
 
 export const emptyStats = (): GatewayStats => ({
@@ -9,6 +9,9 @@ export const emptyStats = (): GatewayStats => ({
   gaps: 0,
   commandsSent: 0,
 });
+
+/** How long stored messages wait to be named in a receipt: one receipt per board and round. */
+export const RECEIPT_MS = 500;
 
 type Outcome = { ok: true } | { ok: false; reason: DropReason };
 
@@ -32,6 +35,14 @@ export class ProtocolHandler {
    * are de-duplicated by the database (one valve event per board and sequence number).
    */
   private chains = new Map<string, Promise<unknown>>();
+
+  /**
+   * Receipts waiting to go out, per board: the sequence numbers of its telemetry and event
+   * messages stored since the last round. Sent together every RECEIPT_MS, one message per board.
+   */
+  private receipts = new Map<string, number[]>();
+  private receiptTimer: ReturnType<typeof setTimeout> | null = null;
+  private sendReceipt: ((serial: string, seqs: number[]) => void) | null = null;
 
   constructor(
     private sink: DeviceSink,
@@ -60,6 +71,31 @@ export class ProtocolHandler {
     this.poisoned.delete(serial);
     this.lastSeq.set(`r:${serial}`, Math.max(seq, this.lastSeq.get(`r:${serial}`) ?? 0));
     this.highest.set(serial, Math.max(seq, this.highest.get(serial) ?? 0));
+  }
+
+  /** Where receipts go (the gateway's publish); without one, none are kept. */
+  setReceiptSender(fn: ((serial: string, seqs: number[]) => void) | null) {
+    this.sendReceipt = fn;
+  }
+
+  /** This board message is stored: say so in the board's next receipt. */
+  private stored(serial: string, seq: number) {
+    if (!this.sendReceipt) return;
+    const xs = this.receipts.get(serial);
+    if (xs) xs.push(seq);
+    else this.receipts.set(serial, [seq]);
+    this.receiptTimer ??= setTimeout(() => this.flushReceipts(), RECEIPT_MS);
+  }
+
+  /** Send every waiting receipt now (also on close). */
+  flushReceipts() {
+    if (this.receiptTimer) clearTimeout(this.receiptTimer);
+    this.receiptTimer = null;
+    const all = this.receipts;
+    this.receipts = new Map();
+    for (const [serial, seqs] of all) {
+      for (let i = 0; i < seqs.length; i += MAX_RECEIPT_SEQS) this.sendReceipt?.(serial, seqs.slice(i, i + MAX_RECEIPT_SEQS));
+    }
   }
 
   drop(serial: string, reason: DropReason, detail?: string): Outcome {
@@ -106,7 +142,12 @@ export class ProtocolHandler {
       // Retained state and status are snapshots: always applied, never dropped as duplicates.
       if (t.kind !== 'state') {
         const last = this.lastSeq.get(laneKey) ?? 0;
-        if (msg.seq <= last) return this.drop(serial, 'duplicate', `seq ${msg.seq} ≤ ${last}`);
+        if (msg.seq <= last) {
+          // Sent again: stored already, or being stored right now. Its receipt goes out once the
+          // lane has settled without a failure (the board missed the first one).
+          if (lane !== 'a') void this.receiptForDuplicate(serial, laneKey, msg.seq);
+          return this.drop(serial, 'duplicate', `seq ${msg.seq} ≤ ${last}`);
+        }
         this.lastSeq.set(laneKey, msg.seq);
       }
       // One counter runs through every kind of message, so gaps are counted across lanes.
@@ -146,7 +187,15 @@ export class ProtocolHandler {
       if (this.chains.get(laneKey) === mine) this.chains.delete(laneKey);
     }
     this.stats.accepted++;
+    if ((t.kind === 'telemetry' || t.kind === 'event') && typeof msg.seq === 'number') this.stored(serial, msg.seq);
     return { ok: true };
+  }
+
+  private async receiptForDuplicate(serial: string, laneKey: string, seq: number) {
+    if (!this.sendReceipt) return;
+    await this.chains.get(laneKey)?.catch(() => {});
+    const last = this.lastSeq.get(laneKey) ?? 0;
+    if (!this.poisoned.has(serial) && seq <= last) this.stored(serial, seq);
   }
 
   private deliver(serial: string, kind: MessageKind, data: unknown, at: Date): Promise<void> {

@@ -52,13 +52,24 @@ export async function startGateway(opts: GatewayOptions): Promise<Gateway> {
     let b = await startEmbeddedBroker({ ...where, handler, sink: opts.sink, log: opts.log });
     port = b.port;
     publish = (t, p, q) => b.publish(t, p, q);
-    close = () => b.close();
+    close = async () => {
+      // what is stored by now gets its receipt before the boards' links go
+      await handler.idle();
+      handler.flushReceipts();
+      await b.close();
+    };
     disconnect = (serial) => b.disconnect(serial);
     restart = async () => {
       await b.close();
       b = await startEmbeddedBroker({ host: where.host, port: port!, handler, sink: opts.sink, log: opts.log });
     };
   }
+  // Receipts are a courtesy the board can do without for a while (it sends again): QoS 0.
+  handler.setReceiptSender((serial, seqs) => {
+    publish(driver.receiptTopic(serial), driver.encodeReceipt(seqs), 0).catch((err) =>
+      opts.log.debug({ serial, err: (err as Error).message }, 'receipt not sent'),
+    );
+  });
   return {
     port,
     stats: handler.stats,
@@ -69,6 +80,9 @@ export async function startGateway(opts: GatewayOptions): Promise<Gateway> {
     },
     restartBroker: () => restart(),
     disconnect: (serial) => disconnect(serial),
-    close: () => close(),
+    close: async () => {
+      await close();
+      handler.setReceiptSender(null);
+    },
   };
 }

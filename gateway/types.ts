@@ -29,4 +29,7 @@ export interface BoardDriver {
   readonly name: string;
   commandTopic(serial: string): string;
   encodeCommand(cmd: Command): Buffer;
+  /** Where and how the server tells a board which of its messages are stored. */
+  receiptTopic(serial: string): string;
+  encodeReceipt(seqs: number[]): Buffer;
 }

@@ -23,8 +23,10 @@ export type SimBoardOptions = {
    * the next message's samples instead of from the next sample.
    */
   samplesInBursts?: boolean;
-  /** Offline buffer size in messages (default 10,000). */
+  /** Offline buffer size in messages (default 10,000); also how many sent messages it keeps until their receipt. */
   bufferLimit?: number;
+  /** Send a message again when its receipt is this late (default 30 s). */
+  resendAfterMs?: number;
   /** Failsafe for a relay opened by the local button (default 600 s). */
   buttonMaxOnSeconds?: number;
   /** First sequence number; default the clock in ms when the board is made, so a restarted board continues above. */
@@ -43,6 +45,13 @@ export type BoardStats = {
   samplesSent: number;
   /** Samples waiting in the offline buffer now. */
   samplesBuffered: number;
+  /** Samples the broker took that no receipt from the server has named yet (kept to send again). */
+  samplesUnconfirmed: number;
+  /** Age of the oldest message waiting for its receipt, in ms (0 when none waits). */
+  unconfirmedAgeMs: number;
+  /** Messages sent again because their receipt was overdue, and receipts received. */
+  resent: number;
+  receipts: number;
   /** Messages (and samples) the full offline buffer threw away. */
   dropped: number;
   samplesDropped: number;
@@ -129,6 +138,7 @@ export class SimBoard {
       opts.seqStart ?? Math.floor(this.clock.now()),
       opts.bufferLimit ?? 10_000,
       opts.log,
+      opts.resendAfterMs,
     );
   }
 
@@ -173,6 +183,10 @@ export class SimBoard {
       samplesTaken: this.samplesTaken,
       samplesSent: c.samplesSent,
       samplesBuffered: buf.samplesQueued,
+      samplesUnconfirmed: this.uplink.samplesUnconfirmed,
+      unconfirmedAgeMs: this.uplink.unconfirmedAgeMs,
+      resent: c.resent,
+      receipts: c.receipts,
       dropped: buf.dropped,
       samplesDropped: buf.samplesDropped,
       reconnects: c.reconnects,

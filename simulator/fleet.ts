@@ -24,6 +24,8 @@ export type SimulatorOptions = {
   /** Longest a batch may hold up the next one while its boards connect (default 10 s). */
   connectBatchTimeoutMs?: number;
   bufferLimit?: number;
+  /** See SimBoardOptions.resendAfterMs. */
+  resendAfterMs?: number;
   reconnectPeriodMs?: number;
   log?: BoardLog;
 };
@@ -53,6 +55,7 @@ export async function startSimulator(opts: SimulatorOptions): Promise<Simulator>
         samplesPerMessage: opts.samplesPerMessage,
         samplesInBursts: opts.samplesInBursts,
         bufferLimit: opts.bufferLimit,
+        resendAfterMs: opts.resendAfterMs,
         reconnectPeriodMs: opts.reconnectPeriodMs,
         log: opts.log,
       }),

@@ -2,12 +2,14 @@ import type { MessageKind } from '../server/contracts/protocol';
 
 /** A board→server message. Its seq and at are fixed when it is made; the text is written then or, for valve messages, when it is handed over. */
 export type Outgoing = {
-  kind: Exclude<MessageKind, 'cmd'>;
+  kind: Exclude<MessageKind, 'cmd' | 'stored'>;
   topic: string;
   payload: string | (() => string);
   retain: boolean;
   /** Sensor samples it carries (telemetry only). */
   samples: number;
+  /** Its sequence number, for the messages the server confirms with a receipt (telemetry and events). */
+  seq?: number;
 };
 
 /**

@@ -8,6 +8,7 @@ import {
   type RelayState,
   type Sample,
   type Telemetry,
+  storedSchema,
 } from '../server/contracts/protocol';
 import { createBoardClient } from './link';
 import { Outbox, type Outgoing } from './outbox';
@@ -43,7 +44,23 @@ export class Uplink {
   private subscribed = false;
   private everConnected = false;
   private readonly outbox: Outbox;
-  readonly counters = { published: { ack: 0, state: 0, status: 0, telemetry: 0, event: 0 }, samplesSent: 0, reconnects: 0 };
+  /**
+   * Telemetry and event messages handed to the broker that no receipt has named yet, by sequence
+   * number, oldest first, with when each was last handed over (whatever became of its PUBACK:
+   * a publish cut off by a broker restart may never report back).
+   */
+  private readonly unconfirmed = new Map<number, { m: Outgoing & { payload: string }; sentAt: number }>();
+  readonly counters = {
+    published: { ack: 0, state: 0, status: 0, telemetry: 0, event: 0 },
+    samplesSent: 0,
+    reconnects: 0,
+    /** Messages sent again because no receipt named them in time. */
+    resent: 0,
+    /** Receipts received. */
+    receipts: 0,
+    /** Messages the full list of unconfirmed ones let go of without a receipt (they may well be stored). */
+    forgotten: 0,
+  };
   private settleStart: () => void = () => {};
   /** Settles when the board is first connected and subscribed (or stopped). */
   readonly started: Promise<void>;
@@ -53,8 +70,11 @@ export class Uplink {
     private seq: number,
     bufferLimit: number,
     private readonly log?: BoardLog,
+    /** Send a message again when the broker took it this long ago and no receipt has named it. */
+    private readonly resendAfterMs = 30_000,
   ) {
     this.outbox = new Outbox(bufferLimit);
+    this.unconfirmedLimit = bufferLimit;
     this.started = new Promise((resolve) => (this.settleStart = resolve));
   }
 
@@ -62,8 +82,24 @@ export class Uplink {
     return this.linkUp;
   }
 
+  private readonly unconfirmedLimit: number;
+
   get buffer(): Pick<Outbox, 'samplesQueued' | 'dropped' | 'samplesDropped'> {
     return this.outbox;
+  }
+
+  /** How long ago the oldest message still waiting for its receipt was handed over (0: none waits). */
+  get unconfirmedAgeMs(): number {
+    let oldest = Infinity;
+    for (const u of this.unconfirmed.values()) oldest = Math.min(oldest, u.sentAt);
+    return oldest === Infinity ? 0 : Date.now() - oldest;
+  }
+
+  /** Samples in messages the broker took but no receipt has named yet. */
+  get samplesUnconfirmed(): number {
+    let n = 0;
+    for (const u of this.unconfirmed.values()) n += u.m.samples;
+    return n;
   }
 
   connect(brokerUrl: string, o: { keepaliveSeconds: number; reconnectPeriodMs: number }): void {
@@ -82,12 +118,53 @@ export class Uplink {
       will: { topic: topicFor(b.serial, 'status'), payload: Buffer.from(OFFLINE_WILL), qos: 1, retain: true },
     });
     const cmdTopic = topicFor(b.serial, 'cmd');
+    const storedTopic = topicFor(b.serial, 'stored');
     c.on('connect', () => this.onConnect());
     c.on('close', () => (this.linkUp = false));
     c.on('error', (err) => this.log?.warn({ serial: b.serial, err: err.message }, 'board link error'));
-    c.on('message', (topic, payload) => topic === cmdTopic && b.onCommand(payload));
+    c.on('message', (topic, payload) => {
+      if (topic === cmdTopic) b.onCommand(payload);
+      else if (topic === storedTopic) this.onReceipt(payload);
+    });
     this.client = c;
+    Uplink.watched.add(this);
+    Uplink.sweeper ??= setInterval(Uplink.sweep, 500);
+    Uplink.sweeper.unref?.();
     c.connect();
+  }
+
+  /** A receipt: the messages it names are stored, and need not be kept any longer. */
+  private onReceipt(payload: Buffer): void {
+    let json: unknown;
+    try {
+      json = JSON.parse(payload.toString('utf8'));
+    } catch {
+      return this.log?.warn({ serial: this.b.serial }, 'receipt is not JSON; ignored');
+    }
+    const r = storedSchema.safeParse(json);
+    if (!r.success) return this.log?.warn({ serial: this.b.serial }, 'receipt does not match the protocol; ignored');
+    this.counters.receipts++;
+    for (const seq of r.data.seqs) this.unconfirmed.delete(seq);
+  }
+
+  /** Every connected board, checked twice a second for messages whose receipt is overdue. */
+  private static watched = new Set<Uplink>();
+  private static sweeper: ReturnType<typeof setInterval> | null = null;
+  private static sweep(): void {
+    const now = Date.now();
+    for (const up of Uplink.watched) up.resendOverdue(now, up.resendAfterMs);
+  }
+
+  /** Send again, in order, what was handed over at least `age` ms ago without a receipt since. */
+  private resendOverdue(now: number, age: number): number {
+    if (!this.linkUp || !this.client || !this.unconfirmed.size) return 0;
+    const due = [...this.unconfirmed].filter(([, u]) => now - u.sentAt >= age).sort((x, y) => x[0] - y[0]);
+    for (const [, u] of due) {
+      u.sentAt = now;
+      this.counters.resent++;
+      this.client.publish(u.m.topic, u.m.payload, { qos: 1 });
+    }
+    return due.length;
   }
 
   /** Drop the TCP link without DISCONNECT (the broker fires the last-will). */
@@ -101,6 +178,11 @@ export class Uplink {
     this.settleStart();
     Uplink.handOver(true);
     const c = this.client;
+    Uplink.watched.delete(this);
+    if (!Uplink.watched.size && Uplink.sweeper) {
+      clearInterval(Uplink.sweeper);
+      Uplink.sweeper = null;
+    }
     if (!c) return;
     if (this.linkUp) {
       const status: BoardStatus = { v: PROTOCOL_VERSION, online: false, at: this.b.boardIso() };
@@ -119,7 +201,7 @@ export class Uplink {
 
   telemetry(samples: Sample[]): void {
     const m: Telemetry = { v: PROTOCOL_VERSION, seq: this.nextSeq(), at: this.b.boardIso(), samples };
-    this.send({ kind: 'telemetry', topic: topicFor(this.b.serial, 'telemetry'), payload: JSON.stringify(m), retain: false, samples: samples.length });
+    this.send({ kind: 'telemetry', topic: topicFor(this.b.serial, 'telemetry'), payload: JSON.stringify(m), retain: false, samples: samples.length, seq: m.seq });
   }
 
   // Valve messages fix their sequence number and time now and are written out when handed over.
@@ -127,7 +209,7 @@ export class Uplink {
     const seq = this.nextSeq();
     const atMs = this.b.boardMs();
     const m = (): BoardEvent => ({ v: PROTOCOL_VERSION, seq, at: new Date(atMs).toISOString(), kind: 'relay', relay, open, source, cmdId });
-    this.send({ kind: 'event', topic: topicFor(this.b.serial, 'event'), payload: () => JSON.stringify(m()), retain: false, samples: 0 });
+    this.send({ kind: 'event', topic: topicFor(this.b.serial, 'event'), payload: () => JSON.stringify(m()), retain: false, samples: 0, seq });
   }
 
   ack(id: string, ok: boolean, error?: string): void {
@@ -179,6 +261,15 @@ export class Uplink {
     const payload = typeof m0.payload === 'function' ? m0.payload() : m0.payload;
     const m = { ...m0, payload };
     if (!this.linkUp || !this.client) return this.outbox.push(m);
+    const seq = m.seq;
+    if (seq !== undefined) {
+      this.unconfirmed.set(seq, { m, sentAt: Date.now() });
+      // a board's memory is bounded: past it, the oldest is let go (it has its PUBACK; most likely stored)
+      if (this.unconfirmed.size > this.unconfirmedLimit) {
+        this.unconfirmed.delete(this.unconfirmed.keys().next().value!);
+        this.counters.forgotten++;
+      }
+    }
     this.client.publish(m.topic, payload, { qos: 1, retain: m.retain }, (err) => {
       if (err) return this.log?.warn({ serial: this.b.serial, kind: m.kind, err: err.message }, 'publish abandoned');
       this.counters.published[m.kind]++;
@@ -195,7 +286,7 @@ export class Uplink {
     const c = this.client;
     if (!c) return;
     if (this.subscribed) return this.onLinkUp();
-    c.subscribe(topicFor(this.b.serial, 'cmd'), { qos: 1 }, (err, granted) => {
+    c.subscribe([topicFor(this.b.serial, 'cmd'), topicFor(this.b.serial, 'stored')], { qos: 1 }, (err, granted) => {
       if (err) return this.log?.warn({ serial: this.b.serial, err: err.message }, 'command subscription failed; retrying on reconnect');
       if (granted?.some((g) => g.qos === 128)) this.log?.warn({ serial: this.b.serial }, 'command subscription refused by the broker');
       this.subscribed = true;

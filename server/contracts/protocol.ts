@@ -11,13 +11,14 @@ import { z } from 'zod';
  *   status     board  → server  QoS 1, retained online/offline; the last-will says offline
  *   telemetry  board  → server  QoS 1           a batch of sensor samples
  *   event      board  → server  QoS 1           a relay opened or closed, and why
+ *   stored     server → board   QoS 0           a receipt: these telemetry and event messages are stored
  */
 export const PROTOCOL_VERSION = 1;
 export const TOPIC_ROOT = 'runnel/v1';
 export const MAX_PAYLOAD_BYTES = 16_384;
 export const MAX_SAMPLES_PER_TELEMETRY = 120;
 
-export const messageKinds = ['cmd', 'ack', 'state', 'status', 'telemetry', 'event'] as const;
+export const messageKinds = ['cmd', 'ack', 'state', 'status', 'telemetry', 'event', 'stored'] as const;
 export type MessageKind = (typeof messageKinds)[number];
 export const boardPublishes: readonly MessageKind[] = ['ack', 'state', 'status', 'telemetry', 'event'];
 
@@ -139,6 +140,20 @@ export const eventSchema = z.strictObject({
 });
 export type BoardEvent = z.infer<typeof eventSchema>;
 
+/** Most sequence numbers one receipt lists. */
+export const MAX_RECEIPT_SEQS = 1000;
+
+/**
+ * A receipt: the board's telemetry and event messages with these sequence numbers are stored.
+ * A board keeps each such message until a receipt names it and sends it again when none has come
+ * for a while; the server stores a message once however often it comes (docs/protocol.md).
+ */
+export const storedSchema = z.strictObject({
+  v,
+  seqs: z.array(seq).min(1).max(MAX_RECEIPT_SEQS),
+});
+export type Stored = z.infer<typeof storedSchema>;
+
 export const schemaFor = {
   cmd: commandSchema,
   ack: ackSchema,
@@ -146,4 +161,5 @@ export const schemaFor = {
   status: statusSchema,
   telemetry: telemetrySchema,
   event: eventSchema,
+  stored: storedSchema,
 } as const;

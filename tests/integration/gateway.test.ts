@@ -140,6 +140,37 @@ describe('message handling', () => {
     b.end(true);
   });
 
+  it('names each stored telemetry and event message in a receipt on the board’s own topic, a resent one too', async () => {
+    const b = await connect(boardB().serial, boardB().serial, boardB().secret);
+    const receipts: number[][] = [];
+    // (receipts for the test before may still come in: only this test's numbers count)
+    b.on('message', (topic, payload) => topic === topicFor(boardB().serial, 'stored') && receipts.push(JSON.parse(payload.toString()).seqs.filter((q: number) => q >= 300)));
+    const granted = await new Promise<number[]>((ok) =>
+      b.subscribe([topicFor(boardB().serial, 'stored'), topicFor(boardA().serial, 'stored')], { qos: 1 }, (err, g) => {
+        const packet = (err as unknown as { packet?: { granted: number[] } })?.packet;
+        ok(packet?.granted ?? (g ?? []).map((x) => x.qos));
+      }),
+    );
+    expect(granted).toEqual([1, 128]); // its own receipts only
+    const t = topicFor(boardB().serial, 'telemetry');
+    await b.publishAsync(t, telemetry(300, 2), { qos: 1 });
+    await b.publishAsync(topicFor(boardB().serial, 'event'), JSON.stringify({ v: 1, seq: 301, at: new Date().toISOString(), kind: 'relay', relay: 1, open: false, source: 'button', cmdId: null }), { qos: 1 });
+    await b.publishAsync(t, telemetry(302, 2), { qos: 1 });
+    await until(() => receipts.flat().length >= 3, 3000);
+    expect(receipts.flat().sort()).toEqual([300, 301, 302]);
+    // a board that missed its receipt sends the message again: not stored twice, and named again
+    const before = await readingsOf(boardB().serial);
+    await b.publishAsync(t, telemetry(302, 2), { qos: 1 });
+    await until(() => receipts.flat().length >= 4, 3000);
+    expect(receipts.flat().slice(3)).toEqual([302]);
+    expect(await readingsOf(boardB().serial)).toBe(before);
+    // a message that is refused is not named
+    await b.publishAsync(t, '{"v":1,"seq":303}', { qos: 1 });
+    await new Promise((r) => setTimeout(r, 800));
+    expect(receipts.flat()).not.toContain(303);
+    b.end(true);
+  });
+
   it('marks a board offline when its connection drops without a goodbye (last-will)', async () => {
     const b = mqtt.connect(w.rt.mqttUrl!, {
       clientId: boardB().serial, username: boardB().serial, password: boardB().secret, reconnectPeriod: 0,

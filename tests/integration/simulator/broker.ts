@@ -29,7 +29,7 @@ export async function startServerClient(url: string) {
   const seen: Seen[] = [];
   client.on('message', (topic, payload, packet) => {
     const t = parseTopic(topic);
-    if (!t || t.kind === 'cmd') return;
+    if (!t || t.kind === 'cmd' || t.kind === 'stored') return;
     const json = JSON.parse(payload.toString('utf8'));
     seen.push({ serial: t.serial, kind: t.kind, json, retain: packet.retain, valid: schemaFor[t.kind].safeParse(json).success });
   });
