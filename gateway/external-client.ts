@@ -89,7 +89,7 @@ export async function connectExternalBroker(opts: {
       await Promise.all(all.map((c) => c.client.unsubscribeAsync(c.topics).catch(() => {})));
       // finish storing what was received, so its PUBACKs go out before the sessions end
       await Promise.race([handler.idle(), new Promise((r) => setTimeout(r, 10_000))]);
-      handler.flushReceipts();
+      handler.flushReceipts(true);
       await Promise.all(
         all.map((c) => c.client.endAsync(false, { properties: { sessionExpiryInterval: 0 } } as never).catch(() => c.client.end(true))),
       );

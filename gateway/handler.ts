@@ -10,8 +10,8 @@ export const emptyStats = (): GatewayStats => ({
   commandsSent: 0,
 });
 
-/** How long stored messages wait to be named in a receipt: one receipt per board and round. */
-export const RECEIPT_MS = 500;
+/** How long stored messages wait by default to be named in a receipt: one receipt per board and round. */
+export const RECEIPT_INTERVAL_MS = 5000;
 
 type Outcome = { ok: true } | { ok: false; reason: DropReason };
 
@@ -38,11 +38,12 @@ export class ProtocolHandler {
 
   /**
    * Receipts waiting to go out, per board: the sequence numbers of its telemetry and event
-   * messages stored since the last round. Sent together every RECEIPT_MS, one message per board.
+   * messages stored since the last round. Sent together every receipt interval, one message per board.
    */
   private receipts = new Map<string, number[]>();
   private receiptTimer: ReturnType<typeof setTimeout> | null = null;
   private sendReceipt: ((serial: string, seqs: number[]) => void) | null = null;
+  private receiptIntervalMs = RECEIPT_INTERVAL_MS;
 
   constructor(
     private sink: DeviceSink,
@@ -73,9 +74,10 @@ export class ProtocolHandler {
     this.highest.set(serial, Math.max(seq, this.highest.get(serial) ?? 0));
   }
 
-  /** Where receipts go (the gateway's publish); without one, none are kept. */
-  setReceiptSender(fn: ((serial: string, seqs: number[]) => void) | null) {
+  /** Where receipts go (the gateway's publish), and how often; without one, none are kept. */
+  setReceiptSender(fn: ((serial: string, seqs: number[]) => void) | null, intervalMs = RECEIPT_INTERVAL_MS) {
     this.sendReceipt = fn;
+    this.receiptIntervalMs = intervalMs;
   }
 
   /** This board message is stored: say so in the board's next receipt. */
@@ -84,18 +86,27 @@ export class ProtocolHandler {
     const xs = this.receipts.get(serial);
     if (xs) xs.push(seq);
     else this.receipts.set(serial, [seq]);
-    this.receiptTimer ??= setTimeout(() => this.flushReceipts(), RECEIPT_MS);
+    this.receiptTimer ??= setTimeout(() => this.flushReceipts(), this.receiptIntervalMs);
   }
 
-  /** Send every waiting receipt now (also on close). */
-  flushReceipts() {
+  /**
+   * Send every waiting receipt: a round goes out a few dozen boards at a time, so a thousand
+   * receipts do not hold up a valve event behind them; `now` sends them all at once (on close).
+   */
+  flushReceipts(now = false) {
     if (this.receiptTimer) clearTimeout(this.receiptTimer);
     this.receiptTimer = null;
-    const all = this.receipts;
+    const round = [...this.receipts];
     this.receipts = new Map();
-    for (const [serial, seqs] of all) {
-      for (let i = 0; i < seqs.length; i += MAX_RECEIPT_SEQS) this.sendReceipt?.(serial, seqs.slice(i, i + MAX_RECEIPT_SEQS));
-    }
+    const send = (from: number) => {
+      const to = now ? round.length : Math.min(round.length, from + 64);
+      for (let k = from; k < to; k++) {
+        const [serial, seqs] = round[k];
+        for (let i = 0; i < seqs.length; i += MAX_RECEIPT_SEQS) this.sendReceipt?.(serial, seqs.slice(i, i + MAX_RECEIPT_SEQS));
+      }
+      if (to < round.length) setImmediate(() => send(to));
+    };
+    send(0);
   }
 
   drop(serial: string, reason: DropReason, detail?: string): Outcome {

@@ -17,6 +17,8 @@ export type GatewayOptions = {
   log: Logger;
   driver?: BoardDriver;
   now?: () => number;
+  /** How often each board gets a receipt for what was stored (default 5 s; boards resend after 30 s). */
+  receiptIntervalMs?: number;
 };
 
 export type Gateway = {
@@ -55,7 +57,7 @@ export async function startGateway(opts: GatewayOptions): Promise<Gateway> {
     close = async () => {
       // what is stored by now gets its receipt before the boards' links go
       await handler.idle();
-      handler.flushReceipts();
+      handler.flushReceipts(true);
       await b.close();
     };
     disconnect = (serial) => b.disconnect(serial);
@@ -69,7 +71,7 @@ export async function startGateway(opts: GatewayOptions): Promise<Gateway> {
     publish(driver.receiptTopic(serial), driver.encodeReceipt(seqs), 0).catch((err) =>
       opts.log.debug({ serial, err: (err as Error).message }, 'receipt not sent'),
     );
-  });
+  }, opts.receiptIntervalMs);
   return {
     port,
     stats: handler.stats,

@@ -28,6 +28,8 @@ const configSchema = z
     ACK_TIMEOUT_MS: z.coerce.number().int().min(100).max(60_000).default(3000),
     /** On SIGTERM/SIGINT, how long requests already running may take to finish before their connections are cut. */
     SHUTDOWN_GRACE_MS: z.coerce.number().int().min(0).max(60_000).default(5000),
+    /** How often a board is told which of its messages are stored (receipts); keep well below the boards' resend time (30 s). */
+    RECEIPT_INTERVAL_MS: z.coerce.number().int().min(50).max(20_000).default(5000),
     COMMAND_RETRIES: z.coerce.number().int().min(0).max(10).default(2),
     /** Added to a run's length to give the board's own failsafe timer. */
     FAILSAFE_MARGIN_SECONDS: z.coerce.number().int().min(1).max(600).default(30),

@@ -82,6 +82,7 @@ export async function startRuntime(config: Config, opts: RuntimeOptions = {}): P
     sink,
     log,
     now: () => clock.now(),
+    receiptIntervalMs: config.RECEIPT_INTERVAL_MS,
   });
   const dispatcher = new ValveDispatcher({
     db, fleet, bus, clock, log: log.child({ part: 'dispatcher' }),

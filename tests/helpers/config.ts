@@ -11,6 +11,8 @@ export function testConfig(databaseUrl: string, extra: Record<string, string> = 
     SIM_PORT: '0',
     WEATHER_PORT: '0',
     FAKE_SMTP_PORT: '0',
+    // receipts come quickly in tests, so a test sees them within its own time
+    RECEIPT_INTERVAL_MS: '300',
     ...extra,
   });
 }
