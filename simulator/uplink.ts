@@ -46,10 +46,11 @@ export class Uplink {
   private readonly outbox: Outbox;
   /**
    * Telemetry and event messages handed to the broker that no receipt has named yet, by sequence
-   * number, oldest first, with when each was last handed over (whatever became of its PUBACK:
-   * a publish cut off by a broker restart may never report back).
+   * number, oldest first. `ackedAt` is when the broker took the latest copy (PUBACK); null while
+   * it is in flight (mqtt.js sends those again itself after a reconnect, and a busy server holds
+   * PUBACKs back: that is not a lost message); 0 once mqtt.js gave the copy up.
    */
-  private readonly unconfirmed = new Map<number, { m: Outgoing & { payload: string }; sentAt: number }>();
+  private readonly unconfirmed = new Map<number, { m: Outgoing & { payload: string }; ackedAt: number | null }>();
   readonly counters = {
     published: { ack: 0, state: 0, status: 0, telemetry: 0, event: 0 },
     samplesSent: 0,
@@ -91,7 +92,7 @@ export class Uplink {
   /** How long ago the oldest message still waiting for its receipt was handed over (0: none waits). */
   get unconfirmedAgeMs(): number {
     let oldest = Infinity;
-    for (const u of this.unconfirmed.values()) oldest = Math.min(oldest, u.sentAt);
+    for (const u of this.unconfirmed.values()) if (u.ackedAt !== null) oldest = Math.min(oldest, u.ackedAt);
     return oldest === Infinity ? 0 : Date.now() - oldest;
   }
 
@@ -144,7 +145,10 @@ export class Uplink {
     const r = storedSchema.safeParse(json);
     if (!r.success) return this.log?.warn({ serial: this.b.serial }, 'receipt does not match the protocol; ignored');
     this.counters.receipts++;
-    for (const seq of r.data.seqs) this.unconfirmed.delete(seq);
+    for (const seq of r.data.seqs) {
+      this.unconfirmed.delete(seq);
+      if (seq > this.highestReceipted) this.highestReceipted = seq;
+    }
   }
 
   /** Every connected board, checked twice a second for messages whose receipt is overdue. */
@@ -155,16 +159,31 @@ export class Uplink {
     for (const up of Uplink.watched) up.resendOverdue(now, up.resendAfterMs);
   }
 
-  /** Send again, in order, what was handed over at least `age` ms ago without a receipt since. */
+  /** The highest sequence number a receipt has named. */
+  private highestReceipted = -1;
+
+  /**
+   * Send again, in order, what the broker took at least `age` ms ago while a receipt has since
+   * named a later message: the server got past it without storing it. A server that is merely
+   * behind names nothing later, so an overloaded one is not sent everything twice.
+   */
   private resendOverdue(now: number, age: number): number {
     if (!this.linkUp || !this.client || !this.unconfirmed.size) return 0;
-    const due = [...this.unconfirmed].filter(([, u]) => now - u.sentAt >= age).sort((x, y) => x[0] - y[0]);
-    for (const [, u] of due) {
-      u.sentAt = now;
+    const due = [...this.unconfirmed]
+      .filter(([seq, u]) => u.ackedAt !== null && now - u.ackedAt >= age && seq < this.highestReceipted)
+      .sort((x, y) => x[0] - y[0]);
+    for (const [seq, u] of due) {
+      u.ackedAt = null;
       this.counters.resent++;
-      this.client.publish(u.m.topic, u.m.payload, { qos: 1 });
+      this.client.publish(u.m.topic, u.m.payload, { qos: 1 }, (err) => this.tookOver(seq, err));
     }
     return due.length;
+  }
+
+  /** The broker took a copy (or mqtt.js gave it up: then it is due again at once). */
+  private tookOver(seq: number, err?: Error | null): void {
+    const u = this.unconfirmed.get(seq);
+    if (u) u.ackedAt = err ? 0 : Date.now();
   }
 
   /** Drop the TCP link without DISCONNECT (the broker fires the last-will). */
@@ -263,7 +282,7 @@ export class Uplink {
     if (!this.linkUp || !this.client) return this.outbox.push(m);
     const seq = m.seq;
     if (seq !== undefined) {
-      this.unconfirmed.set(seq, { m, sentAt: Date.now() });
+      this.unconfirmed.set(seq, { m, ackedAt: null });
       // a board's memory is bounded: past it, the oldest is let go (it has its PUBACK; most likely stored)
       if (this.unconfirmed.size > this.unconfirmedLimit) {
         this.unconfirmed.delete(this.unconfirmed.keys().next().value!);
@@ -271,6 +290,7 @@ export class Uplink {
       }
     }
     this.client.publish(m.topic, payload, { qos: 1, retain: m.retain }, (err) => {
+      if (seq !== undefined) this.tookOver(seq, err);
       if (err) return this.log?.warn({ serial: this.b.serial, kind: m.kind, err: err.message }, 'publish abandoned');
       this.counters.published[m.kind]++;
       this.counters.samplesSent += m.samples;
