@@ -89,7 +89,7 @@ export class Uplink {
     return this.outbox;
   }
 
-  /** How long ago the oldest message still waiting for its receipt was handed over (0: none waits). */
+  /** How long ago the broker took the oldest message still waiting for its receipt (0: none waits). */
   get unconfirmedAgeMs(): number {
     let oldest = Infinity;
     for (const u of this.unconfirmed.values()) if (u.ackedAt !== null) oldest = Math.min(oldest, u.ackedAt);
