@@ -1,8 +1,6 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { DateTime } from 'luxon';
-import { eq, sql } from 'drizzle-orm';
-import { programZones, programs, runs, zoneRuns, zones } from '../../server/db/schema/index';
-import { programCrons } from '../../server/scheduler/calendar';
+import { sql } from 'drizzle-orm';
+import { zones } from '../../server/db/schema/index';
 import { startRuntime, type Runtime } from '../../server/runtime';
 import { SERVER_MQTT_USER } from '../../server/broker/mosquitto';
 import { provisionBoards, type BoardSpecRow } from '../../server/services/device-secrets';
@@ -11,6 +9,7 @@ import { testConfig } from '../helpers/config';
 import { createTestDb, type TestDb } from '../helpers/db';
 import { seedFixture, type Fixture } from '../helpers/fixtures';
 import { liveClient, sessionCookie, until } from '../helpers/live';
+import { expectOneFinishedRun, nextMinuteProgram } from '../helpers/takeover';
 import { startMosquitto, type Mosquitto } from '../helpers/mosquitto';
 
 const sleep = (ms: number) => new Promise((r) => setTimeout(r, ms));
@@ -74,13 +73,7 @@ describe('two instances on one PostgreSQL and one Mosquitto broker', () => {
     const leader = a.services.scheduler.isLeader ? a : b;
     const other = leader === a ? b : a;
     expect(other.services.scheduler.isLeader).toBe(false);
-    const [zoneA2] = await tdb.db.select({ id: zones.id }).from(zones).where(eq(zones.name, 'A2'));
-    // a program that starts at the next whole minute: zone A1 for 15 s, then A2 for 15 s
-    const start = DateTime.now().setZone('America/Denver').plus({ seconds: 5 }).startOf('minute').plus({ minutes: 1 });
-    const startTimes = [start.toFormat('HH:mm')];
-    const dayRule = { kind: 'weekdays' as const, weekdays: [0, 1, 2, 3, 4, 5, 6] };
-    const [p] = await tdb.db.insert(programs).values({ siteId: f.siteA, name: 'Takeover', startTimes, dayRule, crons: programCrons({ startTimes, dayRule, activeFrom: null, activeTo: null }) }).returning();
-    await tdb.db.insert(programZones).values([{ programId: p.id, zoneId: f.zoneA, minutes: 0.25, position: 1, cycleSoak: 'off' }, { programId: p.id, zoneId: zoneA2.id, minutes: 0.25, position: 2, cycleSoak: 'off' }]);
+    const { programId, zoneA2 } = await nextMinuteProgram(tdb.db, f, 'Takeover');
     const board = sim.board('TEST-A-0001');
     await until(() => board.relayStates()[0].open, 90_000, 100);
     const closesAt = Date.parse(board.relayStates()[0].closesAt!);
@@ -91,16 +84,8 @@ describe('two instances on one PostgreSQL and one Mosquitto broker', () => {
     await until(() => !board.relayStates()[0].open, Math.max(0, closesAt - Date.now()) + 5000, 100);
     expect(Date.now()).toBeLessThan(closesAt + 3000);
     // the run goes on: the second zone runs under the new dispatcher, then everything is closed
-    await until(async () => (await tdb.db.select().from(runs).where(eq(runs.programId, p.id)))[0]?.state !== 'running', 150_000, 500);
-    const rs = await tdb.db.select().from(runs).where(eq(runs.programId, p.id));
-    expect(rs).toHaveLength(1);
-    const zr = await tdb.db.select().from(zoneRuns).where(eq(zoneRuns.runId, rs[0].id));
-    expect(zr.map((z) => z.zoneId).sort()).toEqual([f.zoneA, zoneA2.id].sort());
-    expect(zr.every((z) => z.state !== 'running' && z.state !== 'planned')).toBe(true);
-    expect(zr.find((z) => z.zoneId === zoneA2.id)!.state).toBe('completed');
+    await expectOneFinishedRun(tdb.db, f, programId, zoneA2, until);
     expect(board.relayStates().every((r) => !r.open)).toBe(true);
-    const dup = await tdb.db.execute(sql`select zone_id from zone_runs where run_id = ${rs[0].id} group by zone_id, cycle having count(*) > 1`);
-    expect(dup.rows).toEqual([]);
   }, 240_000);
 
   it('stores each reading once across the two instances’ shared subscription, also when the broker restarts during ingest', async () => {

@@ -4,6 +4,7 @@ import net from 'node:net';
 import os from 'node:os';
 import path from 'node:path';
 import { mosquittoHash, SERVER_MQTT_USER, writeMosquittoFiles } from '../../server/broker/mosquitto';
+import { freePort } from './ports';
 
 /** Debian's Mosquitto on a loopback port of its own, with Runnel's generated credentials and ACL. */
 export type Mosquitto = {
@@ -17,15 +18,6 @@ export type Mosquitto = {
   stop: () => Promise<void>;
 };
 
-async function freePort(): Promise<number> {
-  return new Promise((resolve) => {
-    const s = net.createServer();
-    s.listen(0, '127.0.0.1', () => {
-      const p = (s.address() as net.AddressInfo).port;
-      s.close(() => resolve(p));
-    });
-  });
-}
 
 async function waitForPort(port: number, ms = 10_000) {
   const end = Date.now() + ms;

@@ -2,7 +2,7 @@ import { execFileSync } from 'node:child_process';
 import fs from 'node:fs';
 import os from 'node:os';
 import path from 'node:path';
-import net from 'node:net';
+import { freePort } from './ports';
 
 /**
  * A PostgreSQL cluster of one test's own, so the test can stop and start it without touching
@@ -17,15 +17,6 @@ function binDir(): string {
   return path.join(base, v, 'bin');
 }
 
-async function freePort(): Promise<number> {
-  return new Promise((resolve) => {
-    const s = net.createServer();
-    s.listen(0, '127.0.0.1', () => {
-      const p = (s.address() as net.AddressInfo).port;
-      s.close(() => resolve(p));
-    });
-  });
-}
 
 const asPostgres = (cmd: string, args: string[]) =>
   process.getuid?.() === 0 ? execFileSync('runuser', ['-u', 'postgres', '--', cmd, ...args], { stdio: 'pipe' }) : execFileSync(cmd, args, { stdio: 'pipe' });
