@@ -191,7 +191,9 @@ export class ProtocolHandler {
       await mine;
     } catch (e) {
       // Not stored: refuse what follows, and accept this message again when the board resends it.
-      this.poisoned.add(serial);
+      // (Only where this instance sees a board's messages in order and a reconnect clears it; with
+      // a shared subscription the broker hands the message out again and the database de-duplicates.)
+      if (this.dedupeBySeq) this.poisoned.add(serial);
       if (typeof msg.seq === 'number') this.lastSeq.set(laneKey, Math.min(this.lastSeq.get(laneKey) ?? msg.seq, msg.seq - 1));
       throw e;
     } finally {
