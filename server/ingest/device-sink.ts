@@ -3,7 +3,7 @@ import { createHash } from 'node:crypto';
 import { eq, sql } from 'drizzle-orm';
 import type { Logger } from 'pino';
 import type { DeviceSink } from '../../gateway/types';
-import { batched } from '../db/batch';
+import { batched, batchedWrite, inIds } from '../db/batch';
 import type { Ack, BoardEvent, BoardStatus, RelayState, Sample } from '../contracts/protocol';
 import type { Clock } from '../clock';
 import type { Db } from '../db/client';
@@ -47,6 +47,20 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
     const got = await db.insert(valveEvents).values([...rows]).onConflictDoNothing().returning({ controllerId: valveEvents.controllerId, seq: valveEvents.seq });
     const keys = new Set(got.map((g) => `${g.controllerId}:${g.seq}`));
     return rows.map((r) => keys.has(`${r.controllerId}:${r.seq}`));
+  });
+
+  // Boards coming online together (a fleet reconnecting after a broker restart, each status seen
+  // by every instance) share one update and one commit; a board named twice keeps its newest.
+  const markOnline = batchedWrite(async (rows: readonly { id: number; at: Date; offsetMs: number; firmware: string | null }[]) => {
+    const last = new Map(rows.map((r) => [r.id, r]));
+    const v = [...last.values()];
+    await db.execute(sql`update controllers c set online = true, last_seen_at = v.at, clock_offset_ms = v.off, firmware_version = coalesce(v.fw, c.firmware_version)
+      from unnest(${sql.param(v.map((r) => r.id))}::int[], ${sql.param(v.map((r) => r.at.toISOString()))}::timestamptz[],
+        ${sql.param(v.map((r) => r.offsetMs))}::int[], ${sql.param(v.map((r) => r.firmware))}::varchar[]) as v(id, at, off, fw)
+      where c.id = v.id`);
+  });
+  const markOffline = batchedWrite(async (ids: readonly number[]) => {
+    await db.update(controllers).set({ online: false }).where(inIds(controllers.id, [...new Set(ids)]));
   });
 
   async function board(serial: string): Promise<BoardLive | null> {
@@ -105,15 +119,7 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       }
       b.clockOffsetMs = offset;
       if (offset) log.warn({ serial, offsetMs: offset }, 'board clock is off; correcting its times');
-      await db
-        .update(controllers)
-        .set({
-          online: true,
-          lastSeenAt: receivedAt,
-          clockOffsetMs: offset,
-          ...(status.firmware ? { firmwareVersion: status.firmware } : {}),
-        })
-        .where(eq(controllers.id, b.controllerId));
+      await markOnline({ id: b.controllerId, at: receivedAt, offsetMs: offset, firmware: status.firmware ?? null });
       await setOnline(b, true, receivedAt);
     },
 
@@ -121,7 +127,7 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       const b = fleet.get(serial);
       if (!b || !b.online) return;
       log.info({ serial, reason }, 'board offline');
-      await db.update(controllers).set({ online: false }).where(eq(controllers.id, b.controllerId));
+      await markOffline(b.controllerId);
       b.online = false;
       offlineSince.set(b.controllerId, at.getTime());
       bus.publish({ type: 'controller', siteId: b.siteId, controllerId: b.controllerId, online: false, lastSeenAt: b.lastSeenAt ? new Date(b.lastSeenAt).toISOString() : null });
