@@ -17,10 +17,15 @@ export type ExternalLink = {
  * So one connection carries one message per database round trip. The instance therefore opens
  * - one control connection for acknowledgements, relay states and online status (not shared:
  *   every instance needs them, and nothing slow stands in their way), and
- * - `ingestConnections` connections that join the shared subscription for telemetry and valve
- *   events, so the broker spreads the boards' messages over them, and over every instance; each
- *   message is stored once, and several are stored at a time.
+ * - `ingestConnections` connections that join the shared subscription for telemetry, so the
+ *   broker spreads the boards' readings over them, and over every instance; each message is
+ *   stored once, and several are stored at a time, and
+ * - `EVENT_CONNECTIONS` connections that share the boards' valve events the same way, apart
+ *   from the readings.
  */
+/** Connections per instance in the shared subscription for valve events (each stores one event at a time; events are batched into one insert). */
+const EVENT_CONNECTIONS = 16;
+
 export async function connectExternalBroker(opts: {
   url: string;
   username?: string;
@@ -35,7 +40,15 @@ export async function connectExternalBroker(opts: {
   const share = opts.shareGroup ?? 'runnel';
   const n = Math.max(1, opts.ingestConnections ?? 8);
 
-  const connect = async (clientId: string, topics: string[]) => {
+  /**
+   * `holdAck`: the PUBACK waits until the message is stored (telemetry and valve events, shared).
+   * Without it (the control connection: acknowledgements, relay states, online status) the PUBACK
+   * goes out at once and the message is handled beside the next ones: each instance gets its own
+   * copy of these, relay states and status are retained by the broker and come again on a
+   * resubscribe, and a lost acknowledgement is a command retried. Held, five thousand boards
+   * coming online would queue every command's acknowledgement behind five thousand status writes.
+   */
+  const connect = async (clientId: string, topics: string[], holdAck: boolean) => {
     const client: mqtt.MqttClient = await mqtt.connectAsync(opts.url, {
       clientId,
       username: opts.username,
@@ -49,6 +62,11 @@ export async function connectExternalBroker(opts: {
       protocolVersion: 5,
       properties: { sessionExpiryInterval: 3600 },
       customHandleAcks: (topic, payload, _packet, done) => {
+        if (!holdAck) {
+          // (the handler takes each board's place in its lane before its first await: order holds)
+          handler.handle(null, topic, Buffer.from(payload)).catch((err) => log.warn({ err: (err as Error).message, topic }, 'board control message not applied'));
+          return done(0);
+        }
         handler
           .handle(null, topic, Buffer.from(payload))
           .then(() => done(0))
@@ -73,10 +91,14 @@ export async function connectExternalBroker(opts: {
   };
 
   const controlTopics = ['ack', 'state', 'status'].map((k) => `${TOPIC_ROOT}/+/${k}`);
-  const sharedTopics = ['telemetry', 'event'].map((k) => `$share/${share}/${TOPIC_ROOT}/+/${k}`);
-  const control = await connect(opts.clientId, controlTopics);
-  const ingest = await Promise.all(Array.from({ length: n }, (_, i) => connect(`${opts.clientId}-in${i}`, sharedTopics)));
-  const all = [control, ...ingest];
+  const readingTopics = [`$share/${share}/${TOPIC_ROOT}/+/telemetry`];
+  const eventTopics = [`$share/${share}/${TOPIC_ROOT}/+/event`];
+  const control = await connect(opts.clientId, controlTopics, false);
+  const ingest = await Promise.all(Array.from({ length: n }, (_, i) => connect(`${opts.clientId}-in${i}`, readingTopics, true)));
+  // Valve events on connections of their own: a fleet's readings waiting in the broker for a
+  // busy instance do not hold a valve change up behind them.
+  const events = await Promise.all(Array.from({ length: EVENT_CONNECTIONS }, (_, i) => connect(`${opts.clientId}-ev${i}`, eventTopics, true)));
+  const all = [control, ...ingest, ...events];
 
   return {
     publish: async (topic, payload, qos) => {
