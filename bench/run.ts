@@ -23,7 +23,7 @@ if (only.has('ingest')) {
   const ingest: IngestResult[] = [];
   for (const n of (process.env.BENCH_BOARDS ?? '100,1000,2000').split(',').map(Number)) {
     fresh();
-    const r = await benchIngest(n);
+    const r = await benchIngest(n, { samplesPerSecond: process.env.BENCH_SAMPLES_PER_SECOND ? Number(process.env.BENCH_SAMPLES_PER_SECOND) : undefined });
     ingest.push(r);
     console.log(`ingest ${n} boards: ${r.readingsPerSecond} readings/s, lost ${r.lost}, valve p50 ${r.valveEventP50Ms} ms p99 ${r.valveEventP99Ms} ms, rss ${r.serverRssMb} MB`);
     out.ingest = ingest;

@@ -24,10 +24,12 @@ export async function benchScaleOne(n: number, windowMs = 20_000): Promise<Scale
   const ports = [await freePort(), await freePort()];
   const instances: ChildProcess[] = ports.map((port, i) =>
     spawn(process.execPath, nodeProgram('server', 'server/index.ts'), {
-      stdio: ['ignore', 'ignore', 'inherit'],
+      // BENCH_SERVER_LOG_DIR: keep each instance's log there (scale-<boards>-<instance>.log)
+      stdio: ['ignore', process.env.BENCH_SERVER_LOG_DIR ? fs.openSync(path.join(process.env.BENCH_SERVER_LOG_DIR, `scale-${n}-${i}.log`), 'w') : 'ignore', 'inherit'],
       env: {
         ...process.env, ...benchEnv(db.url), PORT: String(port),
         MQTT_URL: broker.serverUrl, MQTT_USERNAME: SERVER_MQTT_USER, MQTT_PASSWORD: broker.serverPassword, INSTANCE_ID: `bench-${i}`, LIVE_RELAY: '1',
+        ...(process.env.BENCH_SERVER_LOG_DIR ? { LOG_LEVEL: 'info' } : {}),
       },
     }),
   );
@@ -80,6 +82,12 @@ export async function benchScaleOne(n: number, windowMs = 20_000): Promise<Scale
   const c1 = await count();
   const t1 = Date.now();
   measuring = false;
+  if (process.env.BENCH_VERBOSE) {
+    // where a valve event's time goes: board → an instance storing it, and the rest
+    const r = await db.db.execute(sql`select count(*) n, percentile_cont(array[0.5, 0.99]) within group (order by extract(epoch from received_at - board_at) * 1000) p
+      from valve_events where received_at > now() - make_interval(secs => ${windowMs / 1000})`);
+    console.log(`  valve events stored in the window: ${r.rows[0].n}, board → stored p50/p99 ms: ${r.rows[0].p}; browser p50 ${percentile(lat, 50)} p99 ${percentile(lat, 99)}`);
+  }
   const rss = instances.map((p) => rssMb(p.pid!));
   sim.kill('SIGINT');
   const totals = (await waitFor('done')) as { sent: number };
