@@ -260,19 +260,55 @@ export class Uplink {
    * share one, so a board's replies are handed over once the commands that arrived together have
    * all been carried out, or a relay would wait for other boards' publishing.
    */
-  private static pending: { up: Uplink; m: Outgoing }[] = [];
+  private static pending: ({ up: Uplink; m: Outgoing } | undefined)[] = [];
+  /** The next one to hand over (the queue is not re-sliced on every round: it can be long). */
+  private static head = 0;
+  private static scheduled = false;
+  /** How long one round may hand over before the event loop gets its turn. */
+  private static readonly SLICE_MS = 8;
 
-  /** A few hundred at a time, so that relay timers due meanwhile run between the rounds. */
+  /** Messages made and not yet handed over, across every board in this process. */
+  static get waiting(): number {
+    return Uplink.pending.length - Uplink.head;
+  }
+
+  /**
+   * Hand over for up to SLICE_MS, so that relay timers and incoming commands due meanwhile run
+   * between the rounds. Rounds measured in time, not in messages: a fixed count per round fell
+   * behind a fleet of thousands (the loop's turn is long there) and a valve event waited seconds
+   * in this queue behind other boards' readings.
+   */
   private static handOver(all = false): void {
-    const xs = all ? Uplink.pending : Uplink.pending.slice(0, 64);
-    Uplink.pending = all ? [] : Uplink.pending.slice(xs.length);
-    for (const { up, m } of xs) up.publish(m);
-    if (Uplink.pending.length) setImmediate(Uplink.handOver);
+    Uplink.scheduled = false;
+    const q = Uplink.pending;
+    const until = performance.now() + Uplink.SLICE_MS;
+    while (Uplink.head < q.length) {
+      const x = q[Uplink.head]!;
+      q[Uplink.head++] = undefined;
+      x.up.publish(x.m);
+      if (!all && (Uplink.head & 15) === 0 && performance.now() >= until) break;
+    }
+    if (Uplink.head >= q.length) {
+      Uplink.pending = [];
+      Uplink.head = 0;
+    } else {
+      if (Uplink.head > 4096) {
+        Uplink.pending = q.slice(Uplink.head);
+        Uplink.head = 0;
+      }
+      Uplink.schedule();
+    }
+  }
+
+  private static schedule(): void {
+    if (Uplink.scheduled) return;
+    Uplink.scheduled = true;
+    setImmediate(() => Uplink.handOver());
   }
 
   private send(m: Outgoing): void {
     Uplink.pending.push({ up: this, m });
-    if (Uplink.pending.length === 1) setImmediate(Uplink.handOver);
+    Uplink.schedule();
   }
 
   /** Hand a message to mqtt.js now, or keep it in the offline buffer. */
