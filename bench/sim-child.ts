@@ -1,5 +1,7 @@
 import fs from 'node:fs';
+import { monitorEventLoopDelay } from 'node:perf_hooks';
 import { startSimulator } from '../simulator/fleet';
+import { Uplink } from '../simulator/uplink';
 import { fleetFileSchema } from '../simulator/spec';
 
 /**
@@ -12,6 +14,17 @@ const fleet = fleetFileSchema.parse(JSON.parse(fs.readFileSync(fleetFile, 'utf8'
 const sim = await startSimulator({ brokerUrl, boards: fleet.boards, seed: 42, sampleIntervalMs: Number(sampleMs), samplesPerMessage: Number(perMsg), samplesInBursts: Number(perMsg) > 1, connectBatchSize: 100 });
 await sim.ready();
 process.stdout.write(JSON.stringify({ ready: true }) + '\n');
+// BENCH_VERBOSE: every 5 s, how late this process's event loop runs and how many messages wait
+// for their turn to be handed to mqtt.js (a backlog here is the simulator's, not the product's).
+if (process.env.BENCH_VERBOSE) {
+  const h = monitorEventLoopDelay({ resolution: 10 });
+  h.enable();
+  setInterval(() => {
+    const U = Uplink.waiting;
+    process.stderr.write(`[sim] loop delay p50 ${Math.round(h.percentile(50) / 1e6)} p99 ${Math.round(h.percentile(99) / 1e6)} max ${Math.round(h.max / 1e6)} ms; ${U} messages waiting to be handed over\n`);
+    h.reset();
+  }, 5000).unref();
+}
 process.on('SIGINT', async () => {
   await sim.close();
   let sent = 0;
