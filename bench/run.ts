@@ -29,6 +29,16 @@ if (only.has('ingest')) {
     out.ingest = ingest;
     save();
   }
+  // The ceiling of one instance: fewer boards offering far more than it stores (120 readings a
+  // second each, in one message), so what it persists is what it can, not what the boards offer.
+  // BENCH_CEILING=0 leaves it out.
+  if (process.env.BENCH_CEILING !== '0') {
+    fresh();
+    const [boards, rate] = [500, 120];
+    const r = await benchIngest(boards, { samplesPerSecond: rate });
+    out.ingestCeiling = { ...r, readingsPerSecondPerBoard: rate };
+    console.log(`ingest ceiling, ${boards} boards × ${rate} readings/s: ${r.readingsPerSecond} readings/s, lost ${r.lost}, rss ${r.serverRssMb} MB`);
+  }
   save();
 }
 // The raw COPY after ingest: its big buffers would otherwise count in the server's memory.
@@ -42,7 +52,8 @@ if (Array.isArray(out.ingest) && out.ingest.length) {
   const ingest = out.ingest as IngestResult[];
   if (typeof out.pgCopyRowsPerSecond === 'number') {
     // our ingest rate: the most readings per second persisted in any ingest run of this benchmark
-    const best = Math.max(...ingest.map((r) => r.readingsPerSecond));
+    const ceiling = out.ingestCeiling as IngestResult | undefined;
+    const best = Math.max(...ingest.map((r) => r.readingsPerSecond), ceiling?.readingsPerSecond ?? 0);
     out.ingestShareOfCopy = Math.round((best / (out.pgCopyRowsPerSecond as number)) * 1000) / 1000;
   }
   save();
