@@ -274,9 +274,11 @@ export class Uplink {
 
   /**
    * Hand over for up to SLICE_MS, so that relay timers and incoming commands due meanwhile run
-   * between the rounds. Rounds measured in time, not in messages: a fixed count per round fell
-   * behind a fleet of thousands (the loop's turn is long there) and a valve event waited seconds
-   * in this queue behind other boards' readings.
+   * between the rounds. Rounds are measured in time, not in messages, and the queue is read from
+   * a head index: with thousands of boards the loop's turn is long, and copying the rest of a long
+   * queue after every few dozen made the hand-over itself the slow part. (A backlog still builds
+   * here when the boards offer more than the machine's cores carry; every message made later,
+   * a valve event too, then waits behind it. `waiting` shows it.)
    */
   private static handOver(all = false): void {
     Uplink.scheduled = false;
