@@ -264,8 +264,8 @@ export class Uplink {
   /** The next one to hand over (the queue is not re-sliced on every round: it can be long). */
   private static head = 0;
   private static scheduled = false;
-  /** How long one round may hand over before the event loop gets its turn. */
-  private static readonly SLICE_MS = 8;
+  /** How long one round may hand over before the event loop gets its turn (a test sets it lower to make a backlog). */
+  static sliceMs = 8;
 
   /** Messages made and not yet handed over, across every board in this process. */
   static get waiting(): number {
@@ -273,7 +273,7 @@ export class Uplink {
   }
 
   /**
-   * Hand over for up to SLICE_MS, so that relay timers and incoming commands due meanwhile run
+   * Hand over for up to `sliceMs`, so that relay timers and incoming commands due meanwhile run
    * between the rounds. Rounds are measured in time, not in messages, and the queue is read from
    * a head index: with thousands of boards the loop's turn is long, and copying the rest of a long
    * queue after every few dozen made the hand-over itself the slow part. (A backlog still builds
@@ -283,7 +283,7 @@ export class Uplink {
   private static handOver(all = false): void {
     Uplink.scheduled = false;
     const q = Uplink.pending;
-    const until = performance.now() + Uplink.SLICE_MS;
+    const until = performance.now() + Uplink.sliceMs;
     while (Uplink.head < q.length) {
       const x = q[Uplink.head]!;
       q[Uplink.head++] = undefined;
