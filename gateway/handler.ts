@@ -215,7 +215,7 @@ export class ProtocolHandler {
     switch (kind) {
       case 'telemetry': {
         const m = data as import('../server/contracts/protocol').Telemetry;
-        return this.sink.samples(serial, m.seq, m.samples, at);
+        return this.sink.samples(serial, m.seq, m, at);
       }
       case 'event':
         return this.sink.relayChanged(serial, data as import('../server/contracts/protocol').BoardEvent, at);

@@ -1,4 +1,4 @@
-import type { Ack, BoardEvent, BoardStatus, Command, RelayState, Sample } from '../server/contracts/protocol';
+import type { Ack, BoardEvent, BoardStatus, Command, RelayState, Telemetry } from '../server/contracts/protocol';
 
 /** What the gateway tells the server, in domain terms. Each promise resolves once the fact is stored. */
 export interface DeviceSink {
@@ -9,7 +9,8 @@ export interface DeviceSink {
   relayChanged(serial: string, e: BoardEvent, receivedAt: Date): Promise<void>;
   relayState(serial: string, s: RelayState, receivedAt: Date): Promise<void>;
   acknowledged(serial: string, a: Ack, receivedAt: Date): Promise<void>;
-  samples(serial: string, seq: number, samples: Sample[], receivedAt: Date): Promise<void>;
+  /** A telemetry message's samples, in either of its forms (sample objects or columns). */
+  samples(serial: string, seq: number, t: Telemetry, receivedAt: Date): Promise<void>;
   /** A sequence gap: `missing` messages never arrived. */
   gap(serial: string, missing: number): void;
 }

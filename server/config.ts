@@ -45,7 +45,7 @@ const configSchema = z
     SCHEDULER_TICK_MS: z.coerce.number().int().min(10).max(600_000).default(1000),
     RECONCILE_DELAY_MS: z.coerce.number().int().min(0).max(120_000).default(5000),
     OFFLINE_AFTER_SECONDS: z.coerce.number().int().min(5).max(3600).default(90),
-    READING_BATCH_ROWS: z.coerce.number().int().min(1).max(100_000).default(5000),
+    READING_BATCH_ROWS: z.coerce.number().int().min(1).max(100_000).default(20_000),
     READING_FLUSH_MS: z.coerce.number().int().min(5).max(10_000).default(25),
     READING_BUFFER_ROWS: z.coerce.number().int().min(100).max(10_000_000).default(500_000),
     /** Outgoing mail server, smtp:// or smtps:// (user:password@host:port). */

@@ -1,7 +1,8 @@
-import { MAX_SAMPLES_PER_TELEMETRY, commandSchema, type Command, type Sample } from '../server/contracts/protocol';
+import { MAX_COLUMN_SPAN_MS, MAX_SAMPLES_PER_TELEMETRY, commandSchema, type Command, type Sample, type SampleColumns } from '../server/contracts/protocol';
+import { isoFromMs } from '../server/contracts/iso-ms';
 import { realClock, type Clock } from './clock';
 import { FaultState, type FaultChange, type FaultView } from './faults';
-import { SensorModel, nominalFlowLpm } from './physics';
+import { SensorModel, nominalFlowLpm, type SensorReading } from './physics';
 import { Rng, boardSeed } from './prng';
 import { RelayBank, type RelaySource } from './relays';
 import type { BoardSpec } from './spec';
@@ -88,8 +89,9 @@ export class SimBoard {
   private powered = false;
   private startedOnce = false;
   private rain = false;
-  private batch: Sample[] = [];
-  private latest: Sample | null = null;
+  /** The samples of the next telemetry message, as its columns: each sample's board time and values. */
+  private batch: { boardMs: number[]; values: SensorReading[] } = { boardMs: [], values: [] };
+  private latest: { boardMs: number; values: SensorReading } | null = null;
   private sampleTimer: unknown = null;
   private nextSampleMs = 0;
   private recent = new Map<string, Outcome>();
@@ -208,7 +210,7 @@ export class SimBoard {
   }
 
   latestSample(): Sample | null {
-    return this.latest;
+    return this.latest && { at: new Date(this.latest.boardMs).toISOString(), ...this.latest.values };
   }
 
   faults(): FaultView {
@@ -414,7 +416,7 @@ export class SimBoard {
       this.flushBatch();
     } else {
       this.takeSample(this.sampleIntervalMs / 1000);
-      if (this.batch.length >= this.samplesPerMessage) this.flushBatch();
+      if (this.batch.boardMs.length >= this.samplesPerMessage) this.flushBatch();
     }
     this.nextSampleMs += this.stepMs;
     if (this.nextSampleMs < now) this.nextSampleMs = now + this.stepMs; // fell behind: skip, never burst
@@ -437,16 +439,33 @@ export class SimBoard {
     // A board's sample times only move forward: two samples never share a millisecond.
     const atMs = Math.max(takenAtMs, this.lastSampleMs + 1);
     this.lastSampleMs = atMs;
-    const sample: Sample = { at: this.boardIso(atMs), ...reading };
-    this.batch.push(sample);
-    this.latest = sample;
+    const boardMs = atMs + this.faultState.skewMinutes * 60_000;
+    // One message's times count on from its first sample: a clock set back mid-batch, or a batch
+    // spanning longer than a message may, starts a new message.
+    const first = this.batch.boardMs[0];
+    if (first !== undefined && (boardMs < first || boardMs - first > MAX_COLUMN_SPAN_MS)) this.flushBatch();
+    this.batch.boardMs.push(boardMs);
+    this.batch.values.push(reading);
+    this.latest = { boardMs, values: reading };
     this.samplesTaken++;
   }
 
   private flushBatch(): void {
-    if (!this.batch.length) return;
-    const samples = this.batch;
-    this.batch = [];
-    this.uplink.telemetry(samples);
+    const { boardMs, values } = this.batch;
+    if (!boardMs.length) return;
+    this.batch = { boardMs: [], values: [] };
+    const t0 = boardMs[0];
+    const flows = values.map((v) => v.flowLpm);
+    const columns: SampleColumns = {
+      t0: isoFromMs(t0),
+      dtMs: boardMs.map((ms) => ms - t0),
+      rain: values.map((v) => v.rain),
+      moistureRaw: values.map((v) => v.moistureRaw),
+      moisturePct: values.map((v) => v.moisturePct),
+      supplyV: values.map((v) => v.supplyV),
+      flowLpm: flows.every((f) => f === null) ? null : flows,
+      rssi: values.map((v) => v.rssi),
+    };
+    this.uplink.telemetry(columns);
   }
 }

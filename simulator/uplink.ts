@@ -6,7 +6,7 @@ import {
   type BoardEvent,
   type BoardStatus,
   type RelayState,
-  type Sample,
+  type SampleColumns,
   type Telemetry,
   storedSchema,
 } from '../server/contracts/protocol';
@@ -218,9 +218,10 @@ export class Uplink {
     return this.seq++;
   }
 
-  telemetry(samples: Sample[]): void {
-    const m: Telemetry = { v: PROTOCOL_VERSION, seq: this.nextSeq(), at: this.b.boardIso(), samples };
-    this.send({ kind: 'telemetry', topic: topicFor(this.b.serial, 'telemetry'), payload: JSON.stringify(m), retain: false, samples: samples.length, seq: m.seq });
+  /** One telemetry message, its samples as columns. */
+  telemetry(columns: SampleColumns): void {
+    const m: Telemetry = { v: PROTOCOL_VERSION, seq: this.nextSeq(), at: this.b.boardIso(), columns };
+    this.send({ kind: 'telemetry', topic: topicFor(this.b.serial, 'telemetry'), payload: JSON.stringify(m), retain: false, samples: columns.dtMs.length, seq: m.seq });
   }
 
   // Valve messages fix their sequence number and time now and are written out when handed over.

@@ -116,13 +116,64 @@ export const sampleSchema = z.strictObject({
 });
 export type Sample = z.infer<typeof sampleSchema>;
 
-export const telemetrySchema = z.strictObject({
-  v,
-  seq,
-  at: isoTime,
-  samples: z.array(sampleSchema).min(1).max(MAX_SAMPLES_PER_TELEMETRY),
-});
+/** The first millisecond of the year 10000: later times have no four-digit year. */
+const LAST_MS = Date.UTC(10000, 0, 1);
+
+/** Longest a columnar message's samples may span (its first to its last). */
+export const MAX_COLUMN_SPAN_MS = 6 * 3_600_000;
+
+const column = <T extends z.ZodType>(item: T) => z.array(item).min(1).max(MAX_SAMPLES_PER_TELEMETRY);
+
+/**
+ * The same samples as columns: one array per field, sample i at index i of each, and times as
+ * whole milliseconds after `t0` (the first sample's board time). Several times smaller than the
+ * sample objects, and cheaper to write, read and check: what a busy board sends.
+ */
+export const sampleColumnsSchema = z
+  .strictObject({
+    t0: isoTime,
+    dtMs: column(z.number().int().min(0).max(MAX_COLUMN_SPAN_MS)),
+    rain: column(z.boolean()),
+    moistureRaw: column(z.number().int().min(0).max(4095)),
+    moisturePct: column(z.number().min(0).max(100)),
+    supplyV: column(z.number().min(0).max(60)),
+    /** null: no flow sensor fitted (every sample's flow is null). */
+    flowLpm: column(z.number().min(0).max(5000).nullable()).nullable(),
+    rssi: column(z.number().int().min(-127).max(0)),
+  })
+  .refine(
+    (c) => [c.rain, c.moistureRaw, c.moisturePct, c.supplyV, c.flowLpm ?? c.dtMs, c.rssi].every((a) => a.length === c.dtMs.length),
+    { message: 'every column must have one value per sample (as many as dtMs)' },
+  )
+  .refine((c) => Date.parse(c.t0) + Math.max(...c.dtMs) < LAST_MS, { message: 'a sample time after the year 9999' });
+export type SampleColumns = z.infer<typeof sampleColumnsSchema>;
+
+/** A batch of samples: as sample objects (`samples`) or as columns (`columns`), exactly one of the two. */
+export const telemetrySchema = z
+  .strictObject({
+    v,
+    seq,
+    at: isoTime,
+    samples: z.array(sampleSchema).min(1).max(MAX_SAMPLES_PER_TELEMETRY).optional(),
+    columns: sampleColumnsSchema.optional(),
+  })
+  .refine((m) => (m.samples === undefined) !== (m.columns === undefined), { message: 'a telemetry message carries either samples or columns, not both or neither' });
 export type Telemetry = z.infer<typeof telemetrySchema>;
+
+
+/**
+ * A telemetry message's samples as objects, in either form (a columnar sample's time is written
+ * as Date#toISOString writes it). For tests, tools and the demo, not the ingest path.
+ */
+export function telemetrySamples(t: Telemetry): Sample[] {
+  if (t.samples) return t.samples;
+  const c = t.columns!;
+  const t0 = Date.parse(c.t0);
+  return c.dtMs.map((dt, i) => ({
+    at: new Date(t0 + dt).toISOString(), rain: c.rain[i], moistureRaw: c.moistureRaw[i], moisturePct: c.moisturePct[i],
+    supplyV: c.supplyV[i], flowLpm: c.flowLpm ? c.flowLpm[i] : null, rssi: c.rssi[i],
+  }));
+}
 
 export const valveSources = ['command', 'button', 'failsafe', 'server'] as const;
 export type ValveSource = (typeof valveSources)[number];

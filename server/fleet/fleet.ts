@@ -22,7 +22,7 @@ export type BoardLive = {
   rain: boolean;
   relays: RelayLive[];
   zoneByRelay: Map<number, number>;
-  latest: (Sample & { atMs: number }) | null;
+  latest: (Omit<Sample, 'at'> & { atMs: number }) | null;
   recent: RecentPoint[];
 };
 

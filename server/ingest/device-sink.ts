@@ -4,7 +4,8 @@ import { eq, sql } from 'drizzle-orm';
 import type { Logger } from 'pino';
 import type { DeviceSink } from '../../gateway/types';
 import { batched, batchedWrite, inIds } from '../db/batch';
-import type { Ack, BoardEvent, BoardStatus, RelayState, Sample } from '../contracts/protocol';
+import type { Ack, BoardEvent, BoardStatus, RelayState, Sample, Telemetry } from '../contracts/protocol';
+import { isoFromMs } from '../contracts/iso-ms';
 import type { Clock } from '../clock';
 import type { Db } from '../db/client';
 import { controllers, valveEvents } from '../db/schema/index';
@@ -195,30 +196,59 @@ export function createDeviceSink(deps: SinkDeps): DeviceSink & { setListener(l: 
       listener?.acknowledged(b, a);
     },
 
-    async samples(serial, seq, samples: Sample[], receivedAt) {
+    async samples(serial, seq, t: Telemetry, receivedAt) {
       const b = await board(serial);
       if (!b) return;
       // Straight to COPY text: a busy fleet sends tens of thousands of samples a second.
       const recvMs = receivedAt.getTime();
       const recvIso = receivedAt.toISOString();
+      // A trusted clock a little ahead of ours (the newest sample is taken as the message leaves)
+      // keeps its own time, so a message sent again gets the same stored time and is recognised
+      // as stored; a time further ahead than any trusted clock can be is this server's receipt time.
+      const serverMs = (boardMs: number) => {
+        const corrected = boardMs + b.clockOffsetMs;
+        return corrected <= recvMs + CLOCK_TOLERANCE_MS ? corrected : recvMs;
+      };
       let text = '';
       let lastAtMs = 0;
       const hours: HourSums[] = [];
-      for (const x of samples) {
-        const boardMs = Date.parse(x.at);
-        // A trusted clock a little ahead of ours (the newest sample is taken as the message leaves)
-        // keeps its own time, so a message sent again gets the same stored time and is recognised
-        // as stored; a time further ahead than any trusted clock can be is this server's receipt time.
-        const corrected = boardMs + b.clockOffsetMs;
-        const atMs = corrected <= recvMs + CLOCK_TOLERANCE_MS ? corrected : recvMs;
-        // A trusted board time is stored as the board wrote it (the protocol checked it).
-        text += copyLine(b.controllerId, atMs === boardMs ? x.at : new Date(atMs).toISOString(), x.at, recvIso, seq, x);
-        addToHour(hours, atMs, x);
-        lastAtMs = atMs;
+      let last: Omit<Sample, 'at'>;
+      let n: number;
+      if (t.columns) {
+        const c = t.columns;
+        const t0 = Date.parse(c.t0);
+        const flow = c.flowLpm;
+        n = c.dtMs.length;
+        const one = { rain: false, moistureRaw: 0, moisturePct: 0, supplyV: 0, flowLpm: null as number | null, rssi: 0 };
+        for (let i = 0; i < n; i++) {
+          const boardMs = t0 + c.dtMs[i];
+          const atMs = serverMs(boardMs);
+          const boardIso = isoFromMs(boardMs);
+          one.rain = c.rain[i];
+          one.moistureRaw = c.moistureRaw[i];
+          one.moisturePct = c.moisturePct[i];
+          one.supplyV = c.supplyV[i];
+          one.flowLpm = flow ? flow[i] : null;
+          one.rssi = c.rssi[i];
+          text += copyLine(b.controllerId, atMs === boardMs ? boardIso : isoFromMs(atMs), boardIso, recvIso, seq, one);
+          addToHour(hours, atMs, one);
+          lastAtMs = atMs;
+        }
+        last = { ...one };
+      } else {
+        const samples = t.samples!;
+        for (const x of samples) {
+          const boardMs = Date.parse(x.at);
+          const atMs = serverMs(boardMs);
+          // A trusted board time is stored as the board wrote it (the protocol checked it).
+          text += copyLine(b.controllerId, atMs === boardMs ? x.at : new Date(atMs).toISOString(), x.at, recvIso, seq, x);
+          addToHour(hours, atMs, x);
+          lastAtMs = atMs;
+        }
+        last = samples[samples.length - 1];
+        n = samples.length;
       }
-      const last = samples[samples.length - 1];
-      const n = samples.length;
-      samples = []; // (let the message go while the commit is awaited; only its newest sample is needed)
+      t = undefined as unknown as Telemetry; // (let the message go while the commit is awaited; only its newest sample is needed)
       await writer.writeText(b.controllerId, seq, text, n, hours);
       b.lastSeenAt = recvMs;
       // A batch that commits after the board went offline does not bring it back: only a message

@@ -140,6 +140,55 @@ describe('message handling', () => {
     b.end(true);
   });
 
+  it('stores a columnar telemetry message as the same rows as sample objects, and refuses columns that disagree', async () => {
+    const stats = w.rt.gateway.stats;
+    const a = await connect(boardA().serial, boardA().serial, boardA().secret);
+    const t = topicFor(boardA().serial, 'telemetry');
+    const t0 = Math.floor(Date.now() / 1000) * 1000 - 20_000;
+    const values = [
+      { rain: false, moistureRaw: 1790, moisturePct: 30.25, supplyV: 25.5, flowLpm: 0, rssi: -60 },
+      { rain: true, moistureRaw: 1801, moisturePct: 31.5, supplyV: 25.25, flowLpm: 12.75, rssi: -61 },
+      { rain: true, moistureRaw: 1850, moisturePct: 33, supplyV: 24.75, flowLpm: 13.5, rssi: -65 },
+    ];
+    const dt = [0, 1000, 2500];
+    const now = new Date().toISOString();
+    await a.publishAsync(t, JSON.stringify({ v: 1, seq: 1001, at: now, samples: values.map((x, i) => ({ at: new Date(t0 + dt[i]).toISOString(), ...x })) }), { qos: 1 });
+    const columns = (start: number) => ({
+      t0: new Date(start).toISOString(), dtMs: dt, rain: values.map((x) => x.rain), moistureRaw: values.map((x) => x.moistureRaw),
+      moisturePct: values.map((x) => x.moisturePct), supplyV: values.map((x) => x.supplyV), flowLpm: values.map((x) => x.flowLpm), rssi: values.map((x) => x.rssi),
+    });
+    await a.publishAsync(t, JSON.stringify({ v: 1, seq: 1002, at: now, columns: columns(t0 + 5000) }), { qos: 1 });
+    // a board without a flow sensor sends the flow column as null
+    await a.publishAsync(t, JSON.stringify({ v: 1, seq: 1003, at: now, columns: { ...columns(t0 + 10_000), flowLpm: null } }), { qos: 1 });
+    const rows = async (seq: number) =>
+      (await w.tdb.db.execute(sql`select extract(epoch from r.board_at) * 1000 - ${t0} as dt, extract(epoch from r.at) * 1000 - ${t0} as at_dt, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi
+        from readings r join controllers c on c.id = r.controller_id where c.serial = ${boardA().serial} and r.seq = ${seq} order by r.board_at`)).rows.map((r) => ({ ...r, dt: Number(r.dt), at_dt: Number(r.at_dt) }));
+    const objects = await rows(1001);
+    expect(objects.map((r) => r.dt)).toEqual(dt);
+    expect(objects.map((r) => r.at_dt)).toEqual(dt); // a trusted clock: stored at the board's time
+    expect(objects.map((r) => r.moisture_raw)).toEqual([1790, 1801, 1850]);
+    const shifted = (rs: typeof objects, by: number) => rs.map((r) => ({ ...r, dt: r.dt - by, at_dt: r.at_dt - by }));
+    expect(shifted(await rows(1002), 5000)).toEqual(objects);
+    expect(shifted(await rows(1003), 10_000)).toEqual(objects.map((r) => ({ ...r, flow_lpm: null })));
+
+    const malformed0 = stats.dropped.malformed;
+    const before = await readingsOf(boardA().serial);
+    const bad = [
+      { ...columns(t0), rain: [true, false] }, // a column shorter than dtMs
+      { ...columns(t0), dtMs: [0, -1000, 2500] }, // a time before t0
+      { ...columns(Date.UTC(9999, 11, 31, 23, 59, 59)) }, // samples after the year 9999
+      { ...columns(t0), rssi: [-60, -61, 5] }, // a value out of range
+    ];
+    for (const [i, c] of bad.entries()) await a.publishAsync(t, JSON.stringify({ v: 1, seq: 1010 + i, at: now, columns: c }), { qos: 1 });
+    const both = { v: 1, seq: 1020, at: now, columns: columns(t0 + 20_000), samples: [sample()] };
+    await a.publishAsync(t, JSON.stringify(both), { qos: 1 });
+    const { samples: _s, columns: _c, ...neither } = both;
+    await a.publishAsync(t, JSON.stringify(neither), { qos: 1 });
+    expect(stats.dropped.malformed - malformed0).toBe(6);
+    expect(await readingsOf(boardA().serial)).toBe(before);
+    a.end(true);
+  });
+
   it('names each stored telemetry and event message in a receipt on the board’s own topic, a resent one too', async () => {
     const b = await connect(boardB().serial, boardB().serial, boardB().secret);
     const receipts: number[][] = [];

@@ -3,6 +3,7 @@ import { SimBoard, type SimBoardOptions } from '../../../simulator/board';
 import { ManualClock } from '../../../simulator/clock';
 import { Uplink } from '../../../simulator/uplink';
 import type { BoardSpec } from '../../../simulator/spec';
+import { telemetrySamples } from '../../../server/contracts/protocol';
 import { sleep, startBroker, startServerClient, waitFor } from './broker';
 
 let broker: Awaited<ReturnType<typeof startBroker>>;
@@ -250,7 +251,7 @@ describe('simulated relay board over a real broker', () => {
     const b = await boot(s, { clock, sampleIntervalMs: 1000, samplesPerMessage: 5 });
     b.setRain(true);
     const t = await waitFor(() => server.of(s.serial, 'telemetry')[0], 'telemetry after the rain trip');
-    expect(t.json.samples.at(-1).rain).toBe(true);
+    expect(telemetrySamples(t.json).at(-1)!.rain).toBe(true);
   });
 
   it('fires the last-will when dropped off the network, buffers, and replays in seq order with no gap', async () => {
@@ -297,7 +298,7 @@ describe('simulated relay board over a real broker', () => {
     const events = msgs.filter((m) => m.kind === 'event').map((m) => m.json);
     expect(events.map((e) => [e.open, e.source])).toEqual([[true, 'button'], [false, 'button']]);
     // Every sample the board counts as sent arrived exactly once, in time order.
-    const samples = [...new Map(msgs.filter((m) => m.kind === 'telemetry').map((m) => [seqOf(m), m.json.samples])).values()].flat();
+    const samples = [...new Map(msgs.filter((m) => m.kind === 'telemetry').map((m) => [seqOf(m), telemetrySamples(m.json)])).values()].flat();
     expect(samples.length).toBe(stats.samplesSent);
     expect(stats.samplesSent).toBeGreaterThan(offline.samplesBuffered);
     for (let i = 1; i < samples.length; i++) expect(Date.parse(samples[i].at)).toBeGreaterThan(Date.parse(samples[i - 1].at));
@@ -337,9 +338,10 @@ describe('simulated relay board over a real broker', () => {
     const a = await samplesWith(7);
     const again = await samplesWith(7);
     const other = await samplesWith(8);
-    expect(a[0].samples).toHaveLength(5);
+    expect(telemetrySamples(a[0])).toHaveLength(5);
     expect(again).toEqual(a);
-    expect(other.map((t) => t.samples.map((x: { moistureRaw: number }) => x.moistureRaw))).not.toEqual(a.map((t) => t.samples.map((x: { moistureRaw: number }) => x.moistureRaw)));
+    const raw = (ts: typeof a) => ts.map((t) => telemetrySamples(t).map((x) => x.moistureRaw));
+    expect(raw(other)).not.toEqual(raw(a));
   });
 
   it('takes a message’s samples together in burst mode: the same values, each at its own time', async () => {
@@ -356,7 +358,7 @@ describe('simulated relay board over a real broker', () => {
         return t.length >= 2 && t;
       }, 'two telemetry messages');
       await b.stop();
-      return tele.slice(0, 2).map((m) => m.json as { samples: { at: string; moistureRaw: number; flowLpm: number | null }[] });
+      return tele.slice(0, 2).map((m) => ({ samples: telemetrySamples(m.json) }));
     }
     const steady = await messages(false);
     const burst = await messages(true);

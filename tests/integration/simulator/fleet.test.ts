@@ -6,6 +6,7 @@ import { fileURLToPath } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startSimulator } from '../../../simulator/fleet';
 import type { BoardSpec } from '../../../simulator/spec';
+import { telemetrySamples } from '../../../server/contracts/protocol';
 import { startBroker, startServerClient, waitFor } from './broker';
 
 let broker: Awaited<ReturnType<typeof startBroker>>;
@@ -41,7 +42,7 @@ describe('simulated fleet', () => {
 
       const res = await fetch(`${sim.controlUrl}/controllers/FLT-0007/rain`, { method: 'POST', headers: { 'content-type': 'application/json' }, body: JSON.stringify({ tripped: true }) });
       expect(res.status).toBe(200);
-      await waitFor(() => server.of('FLT-0007', 'telemetry').some((m) => m.json.samples.some((x: { rain: boolean }) => x.rain)), 'rain in telemetry');
+      await waitFor(() => server.of('FLT-0007', 'telemetry').some((m) => telemetrySamples(m.json).some((x) => x.rain)), 'rain in telemetry');
       expect(() => sim.board('NOPE-0001')).toThrow(/No simulated board/);
       expect(sim.board('FLT-0002').spec.hasFlowSensor).toBe(false);
     } finally {
