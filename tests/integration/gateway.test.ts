@@ -162,7 +162,7 @@ describe('message handling', () => {
     await a.publishAsync(t, JSON.stringify({ v: 1, seq: 1003, at: now, columns: { ...columns(t0 + 10_000), flowLpm: null } }), { qos: 1 });
     const rows = async (seq: number) =>
       (await w.tdb.db.execute(sql`select extract(epoch from r.board_at) * 1000 - ${t0} as dt, extract(epoch from r.at) * 1000 - ${t0} as at_dt, rain, moisture_raw, moisture_pct, supply_v, flow_lpm, rssi
-        from readings r join controllers c on c.id = r.controller_id where c.serial = ${boardA().serial} and r.seq = ${seq} order by r.board_at`)).rows.map((r) => ({ ...r, dt: Number(r.dt), at_dt: Number(r.at_dt) }));
+        from readings r join controllers c on c.id = r.controller_id where c.serial = ${boardA().serial} and r.seq = ${seq} order by r.board_at`)).rows.map((r) => ({ ...(r as Record<string, unknown>), dt: Number(r.dt), at_dt: Number(r.at_dt) }) as Record<string, unknown> & { dt: number; at_dt: number });
     const objects = await rows(1001);
     expect(objects.map((r) => r.dt)).toEqual(dt);
     expect(objects.map((r) => r.at_dt)).toEqual(dt); // a trusted clock: stored at the board's time
