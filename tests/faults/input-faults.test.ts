@@ -24,6 +24,9 @@ const rowCounts = async () =>
 
 /** A valid message of each kind, and ways to break it that the zod schemas must catch. */
 const validTelemetry = () => ({ v: 1, seq: 10, at: new Date().toISOString(), samples: [{ at: new Date().toISOString(), rain: false, moistureRaw: 1800, moisturePct: 31, supplyV: 25, flowLpm: 0, rssi: -60 }] });
+/** The same as columns; its flow column is null (no sensor), so no mutation can make a null there valid. */
+const validColumns = () => ({ t0: new Date().toISOString(), dtMs: [0], rain: [false], moistureRaw: [1800], moisturePct: [31], supplyV: [25], flowLpm: null, rssi: [-60] });
+const validColumnar = () => ({ v: 1, seq: 10, at: new Date().toISOString(), columns: validColumns() });
 const validEvent = () => ({ v: 1, seq: 11, at: new Date().toISOString(), kind: 'relay', relay: 1, open: true, source: 'button', cmdId: null });
 const wrongValue = fc.oneof(fc.constant(null), fc.string(), fc.integer({ min: -1e9, max: 1e9 }), fc.double(), fc.boolean(), fc.constant([]), fc.constant({}));
 
@@ -61,12 +64,17 @@ describe('10,000 malformed MQTT messages', () => {
     const stats = w.rt.gateway.stats;
     const dropped0 = stats.dropped.malformed + stats.dropped.oversized;
     const before = await rowCounts();
-    const tele = fc.sample(mutate(validTelemetry()), 4000);
+    // sample objects, and columns broken outside and inside
+    const tele = [
+      ...fc.sample(mutate(validTelemetry()), 2000),
+      ...fc.sample(mutate(validColumnar()), 1000),
+      ...fc.sample(mutate(validColumns()), 1000).map((columns) => ({ ...validColumnar(), columns })),
+    ];
     const ev = fc.sample(mutate(validEvent()), 4000);
     const junk = fc.sample(fc.uint8Array({ minLength: 0, maxLength: 64 }), 1990).map((u) => Buffer.from(u));
     const huge = Array.from({ length: 10 }, () => Buffer.alloc(20_000, 0x20));
     // a string that happens to be valid JSON of a valid message must not be sampled as "malformed"
-    const isValid = (m: unknown) => JSON.stringify(m) === JSON.stringify(validTelemetry()) || JSON.stringify(m) === JSON.stringify(validEvent());
+    const isValid = (m: unknown) => [validTelemetry(), validColumnar(), validEvent()].some((x) => JSON.stringify(m) === JSON.stringify(x));
     const msgs: [string, Buffer][] = [
       ...tele.filter((m) => !isValid(m)).map((m) => [topicFor(b.serial, 'telemetry'), Buffer.from(JSON.stringify(m) ?? 'x')] as [string, Buffer]),
       ...ev.filter((m) => !isValid(m)).map((m) => [topicFor(b.serial, 'event'), Buffer.from(JSON.stringify(m) ?? 'x')] as [string, Buffer]),
