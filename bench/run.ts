@@ -34,7 +34,7 @@ if (only.has('ingest')) {
   // BENCH_CEILING=0 leaves it out.
   if (process.env.BENCH_CEILING !== '0') {
     fresh();
-    // BENCH_CEILING_BOARDS: how many (default 700: 84,000 readings/s offered, a little more than one instance stores here; far more only measures a backlog)
+    // BENCH_CEILING_BOARDS: how many (default 700: 84,000 readings/s offered, about what one instance stores here; far more only measures a backlog)
     const [boards, rate] = [Number(process.env.BENCH_CEILING_BOARDS ?? 700), 120];
     const r = await benchIngest(boards, { samplesPerSecond: rate });
     out.ingestCeiling = { ...r, readingsPerSecondPerBoard: rate };
