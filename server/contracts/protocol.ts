@@ -180,10 +180,9 @@ export const telemetrySchema = z
   .refine((m) => (m.samples === undefined) !== (m.columns === undefined), { message: 'a telemetry message carries either samples or columns, not both or neither' });
 export type Telemetry = z.infer<typeof telemetrySchema>;
 
-
 /**
  * A telemetry message's samples as objects, in either form (a columnar sample's time is written
- * as Date#toISOString writes it). For tests, tools and the demo, not the ingest path.
+ * as Date#toISOString writes it). For tests and tools that read what boards send, not the ingest path.
  */
 export function telemetrySamples(t: Telemetry): Sample[] {
   if (t.samples) return t.samples;
